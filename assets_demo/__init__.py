@@ -1,0 +1,1 @@
+"""The invented Tavlund Verkstad demo catalog (models written by make_catalog.py)."""

@@ -1,0 +1,79 @@
+"""The colour pipeline: exposure, tone mapping, sRGB transfer and alpha handling.
+
+Shading happens in linear light with Rec.709 primaries (glTF's). An image leaves the renderer as
+premultiplied linear RGBA; this module turns it into display values with straight alpha.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+TONE_MAPS = ("neutral", "none")
+
+
+def srgb_to_linear(c: np.ndarray) -> np.ndarray:
+    """Decode sRGB values in [0, 1] to linear light (IEC 61966-2-1, §5.2)."""
+    c = np.asarray(c, np.float64)
+    return np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+
+
+def linear_to_srgb(x: np.ndarray) -> np.ndarray:
+    """Encode linear values in [0, 1] to sRGB (IEC 61966-2-1, §5.2)."""
+    x = np.clip(np.asarray(x, np.float64), 0.0, 1.0)
+    return np.where(x <= 0.0031308, 12.92 * x, 1.055 * x ** (1.0 / 2.4) - 0.055)
+
+
+def pbr_neutral(color: np.ndarray) -> np.ndarray:
+    """Khronos PBR Neutral tone mapping (KhronosGroup/ToneMapping, "PBR Neutral", 2024).
+
+    Near-identity below a peak of 0.76 (a small toe removes up to 0.04), so a product's base colour
+    survives; brighter values are compressed and desaturated toward white.
+
+    Parameters
+    ----------
+    color : (..., 3) linear RGB.
+    """
+    start_compression = 0.8 - 0.04
+    desaturation = 0.15
+    color = np.asarray(color, np.float64)
+    x = np.min(color, axis=-1, keepdims=True)
+    offset = np.where(x < 0.08, x - 6.25 * x * x, 0.04)
+    color = color - offset
+    peak = np.max(color, axis=-1, keepdims=True)
+    d = 1.0 - start_compression
+    new_peak = 1.0 - d * d / (peak + d - start_compression)
+    compressed = color * (new_peak / np.maximum(peak, 1e-12))
+    g = 1.0 - 1.0 / (desaturation * (peak - new_peak) + 1.0)
+    compressed = compressed * (1.0 - g) + new_peak * g
+    return np.where(peak < start_compression, color, compressed)
+
+
+def to_display(
+    premultiplied: np.ndarray, exposure: float = 0.0, tone_map: str = "neutral"
+) -> np.ndarray:
+    """Premultiplied linear RGBA → straight-alpha display RGBA in [0, 1] (sRGB-encoded colour).
+
+    Colour is un-premultiplied first, so a half-covered white edge stays white with alpha 0.5
+    instead of turning grey (no dark fringe); then exposure (2^stops), tone map, sRGB encode.
+
+    Parameters
+    ----------
+    premultiplied : (h, w, 4) float32 linear RGBA, colour already multiplied by alpha.
+    exposure : stops; the linear colour is multiplied by 2**exposure.
+    tone_map : "neutral" (Khronos PBR Neutral) or "none" (clip).
+    """
+    if tone_map not in TONE_MAPS:
+        raise ValueError(f"tone map must be one of {TONE_MAPS}, not {tone_map!r}")
+    alpha = np.clip(premultiplied[..., 3:4].astype(np.float64), 0.0, 1.0)
+    color = np.where(alpha > 0, premultiplied[..., :3] / np.maximum(alpha, 1e-12), 0.0)
+    color = np.maximum(color, 0.0) * 2.0**exposure
+    if tone_map == "neutral":
+        color = pbr_neutral(color)
+    return np.concatenate([linear_to_srgb(color), alpha], axis=-1)
+
+
+def quantize(display: np.ndarray, bits: int = 8) -> np.ndarray:
+    """Display values in [0, 1] → uint8 or uint16 codes, rounded to nearest."""
+    top = (1 << bits) - 1
+    dtype = np.uint8 if bits == 8 else np.uint16
+    return np.rint(np.clip(display, 0.0, 1.0) * top).astype(dtype)

@@ -1,0 +1,127 @@
+"""glTF 2.0 loader: a .gltf or .glb file in, one world-space ``shots.scene.Scene`` out.
+
+Modules: ``container`` (GLB/JSON, URIs, security), ``accessors`` (typed, strided, sparse
+decoding), ``geometry`` (scene graph, primitives), ``materials``, ``textures``, ``cameras``
+(cameras and punctual lights), ``draco`` (optional), ``assemble`` (flat arrays).
+"""
+
+from __future__ import annotations
+
+import os
+
+import numpy as np
+
+from shots.errors import GltfError
+from shots.gltf import checks, draco
+from shots.gltf.accessors import AccessorReader
+from shots.gltf.assemble import assemble
+from shots.gltf.cameras import file_cameras, file_lights
+from shots.gltf.container import Document, read_document
+from shots.gltf.geometry import GeometryBuilder, scene_roots
+from shots.gltf.materials import MATERIAL_EXTENSIONS, MaterialBuilder
+from shots.gltf.textures import TextureAtlas
+from shots.scene import Scene
+
+__all__ = ["load_scene", "SUPPORTED_EXTENSIONS", "GltfError"]
+
+SUPPORTED_EXTENSIONS = frozenset(
+    MATERIAL_EXTENSIONS
+    + ("KHR_mesh_quantization", "KHR_lights_punctual", "EXT_texture_webp")
+    + ((draco.EXTENSION,) if draco.AVAILABLE else ())
+)
+
+
+def load_scene(path: str | os.PathLike, scene: int | str | None = None,
+               max_triangles: int = 20_000_000, max_texture_pixels: int = 268_435_456) -> Scene:
+    """Load a glTF 2.0 model (.gltf with external files or data: URIs, or .glb).
+
+    Parameters
+    ----------
+    path : the model file; GLB is recognised by its magic number, not its extension.
+    scene : index or name of the scene to render; default the file's ``scene``, else scenes[0].
+    max_triangles : refuse models drawing more triangles (all node instances counted).
+    max_texture_pixels : refuse models whose textures hold more pixels in total.
+
+    Returns
+    -------
+    Scene with world-space float32 geometry, int32 triangles, materials and textures.
+
+    Raises
+    ------
+    GltfError for any malformed, hostile or unsupported input, naming the JSON field.
+    """
+    doc = read_document(path)
+    try:
+        # NaN/Inf in hostile data are handled explicitly (dropped or replaced), not warned about
+        with np.errstate(all="ignore"):
+            return _build(doc, scene, max_triangles, max_texture_pixels)
+    except GltfError:
+        raise
+    except MemoryError:
+        raise doc.error(None, "not enough memory to load the model") from None
+    except RecursionError:
+        raise doc.error(None, "structure nested too deeply") from None
+
+
+def _build(doc: Document, choice, max_triangles: int, max_texture_pixels: int) -> Scene:
+    _check_extensions(doc)
+    doc.variant_names = _variant_names(doc)
+    atlas = TextureAtlas(doc, max_texture_pixels)
+    materials = MaterialBuilder(doc, atlas)
+    reader = AccessorReader(doc, max_elements=4 * max_triangles + 1024)
+    builder = GeometryBuilder(doc, reader, materials.count, materials.normal_map_texcoord,
+                              max_triangles, draco.decode_primitive if draco.AVAILABLE else None)
+    roots = scene_roots(doc, choice)
+    nodes = builder.add_scene(roots)
+    builder.warn_dropped()
+    mesh = assemble(doc, builder.pieces, len(doc.variant_names))
+    if mesh.triangles.shape[0] == 0:
+        doc.warn("the scene has no triangles to render")
+    return Scene(
+        positions=mesh.positions,
+        normals=mesh.normals,
+        tangents=mesh.tangents,
+        uv=mesh.uv,
+        colors=mesh.colors,
+        triangles=mesh.triangles,
+        tri_material=mesh.tri_material,
+        materials=materials.table(),
+        textures=atlas.result(),
+        variants={name: mesh.variants[k] for k, name in enumerate(doc.variant_names)},
+        cameras=file_cameras(doc, nodes),
+        lights=file_lights(doc, nodes),
+        source=doc.source,
+        warnings=tuple(doc.warnings),
+    )
+
+
+def _check_extensions(doc: Document) -> None:
+    """Refuse required extensions we do not implement (checklist L20); note the ignored ones."""
+    src, gltf = doc.source, doc.gltf
+    required = checks.array(gltf.extensionsRequired, src, "extensionsRequired")
+    for k, name in enumerate(required):
+        if not isinstance(name, str) or name not in SUPPORTED_EXTENSIONS:
+            hint = " (install DracoPy)" if name == draco.EXTENSION else ""
+            raise doc.error(f"extensionsRequired[{k}]",
+                            f"required extension {name!r:.60} is not supported{hint}")
+    used = checks.array(gltf.extensionsUsed, src, "extensionsUsed")
+    ignored = sorted(str(n) for n in used if str(n) not in SUPPORTED_EXTENSIONS)
+    if ignored:
+        doc.warn(f"extensions ignored: {', '.join(ignored)}")
+
+
+def _variant_names(doc: Document) -> list[str]:
+    """KHR_materials_variants names, in file order (duplicates made unique)."""
+    src = doc.source
+    root = checks.mapping(doc.gltf.extensions, src, "extensions")
+    ext = checks.mapping(root.get("KHR_materials_variants"), src,
+                         "extensions.KHR_materials_variants")
+    names: list[str] = []
+    for k, item in enumerate(checks.array(ext.get("variants"), src,
+                                          "extensions.KHR_materials_variants.variants")):
+        item = checks.mapping(item, src, f"extensions.KHR_materials_variants.variants[{k}]")
+        name = str(item.get("name") or f"variant {k}")
+        while name in names:
+            name += "'"
+        names.append(name)
+    return names

@@ -1,0 +1,510 @@
+"""Scene graph and primitives: world transforms, triangulation, attributes in world space.
+
+Spec §Transformations: local = T·R·S (quaternion x, y, z, w) or the column-major ``matrix``;
+world = parent · local. Spec §Meshes: modes, defaults, flat normals when NORMAL is absent.
+Spec §Instantiation: a negative determinant flips the winding.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+import pygltflib
+
+from shots.gltf import checks
+from shots.gltf.accessors import AccessorReader
+from shots.gltf.container import Document
+
+TRIANGLES, TRIANGLE_STRIP, TRIANGLE_FAN = 4, 5, 6
+MODE_NAMES = {0: "POINTS", 1: "LINES", 2: "LINE_LOOP", 3: "LINE_STRIP"}
+RESTART = {np.dtype("u1"): 0xFF, np.dtype("u2"): 0xFFFF, np.dtype("u4"): 0xFFFFFFFF}
+
+
+@dataclass
+class Piece:
+    """One primitive instanced by one node, in world space (arrays of ``v`` vertices)."""
+
+    positions: np.ndarray  # (v, 3) float32
+    normals: np.ndarray  # (v, 3) float32, unit
+    triangles: np.ndarray  # (k, 3) int32, local vertex numbers, counter-clockwise
+    material: int
+    tangents: np.ndarray | None = None  # (v, 4) float32
+    uv: list[np.ndarray | None] = field(default_factory=lambda: [None, None])  # (v, 2) each
+    colors: np.ndarray | None = None  # (v, 4) float32
+    variants: dict[int, int] = field(default_factory=dict)  # variant index -> material
+
+
+# ---------------------------------------------------------------- scene graph --------------
+
+def scene_roots(doc: Document, choice: int | str | None) -> list[int]:
+    """Root nodes of the chosen scene: by index or name, else ``scene``, else scenes[0] (L1)."""
+    gltf, src = doc.gltf, doc.source
+    scenes = gltf.scenes or []
+    if not scenes:
+        raise doc.error("scenes", "the file defines no scene to render")
+    if isinstance(choice, str):
+        names = [s.name for s in scenes]
+        if choice not in names:
+            raise doc.error("scenes", f"no scene named {choice!r}; have {names}")
+        chosen = names.index(choice)
+    elif choice is not None:
+        chosen = checks.index(choice, scenes, src, "scene (requested)", "scenes")
+    elif gltf.scene is not None:
+        chosen = checks.index(gltf.scene, scenes, src, "scene", "scenes")
+    else:
+        chosen = 0
+        if len(scenes) > 1:
+            doc.warn("no default scene: rendering scenes[0]")
+    nodes = checks.array(scenes[chosen].nodes, src, f"scenes[{chosen}].nodes")
+    return [checks.index(n, gltf.nodes, src, f"scenes[{chosen}].nodes[{k}]", "nodes")
+            for k, n in enumerate(nodes)]
+
+
+def world_transforms(doc: Document, roots: list[int]) -> list[tuple[int, np.ndarray]]:
+    """Every node under ``roots`` with its (4, 4) float64 world matrix, parents first.
+
+    Nodes must form disjoint trees (Spec §Nodes and Hierarchy): a node reached twice (a cycle,
+    or two parents) is refused, which also bounds the work a hostile file can cause.
+    """
+    gltf, src = doc.gltf, doc.source
+    seen: set[int] = set()
+    out: list[tuple[int, np.ndarray]] = []
+    stack: list[tuple[int, np.ndarray, str]] = [
+        (r, np.eye(4), "scene roots") for r in reversed(roots)
+    ]
+    while stack:
+        i, parent, via = stack.pop()
+        if i in seen:
+            raise doc.error(f"nodes[{i}]", f"reached twice (from {via}): the node graph has a "
+                                           "cycle or a node with two parents")
+        seen.add(i)
+        world = parent @ local_matrix(doc, i)
+        out.append((i, world))
+        children = checks.array(gltf.nodes[i].children, src, f"nodes[{i}].children")
+        for k in range(len(children) - 1, -1, -1):
+            c = checks.index(children[k], gltf.nodes, src, f"nodes[{i}].children[{k}]", "nodes")
+            stack.append((c, world, f"nodes[{i}].children[{k}]"))
+    return out
+
+
+def local_matrix(doc: Document, i: int) -> np.ndarray:
+    """(4, 4) float64 local transform of node ``i`` (Spec §Transformations, checklist L2, L3)."""
+    node, src, where = doc.gltf.nodes[i], doc.source, f"nodes[{i}]"
+    if node.matrix is not None:
+        m = checks.numbers(node.matrix, 16, src, where + ".matrix")
+        return np.array(m, np.float64).reshape(4, 4).T  # column-major storage
+    t = checks.numbers(node.translation, 3, src, where + ".translation", (0.0, 0.0, 0.0))
+    q = checks.numbers(node.rotation, 4, src, where + ".rotation", (0.0, 0.0, 0.0, 1.0))
+    s = checks.numbers(node.scale, 3, src, where + ".scale", (1.0, 1.0, 1.0))
+    out = np.eye(4)
+    out[:3, :3] = quaternion_matrix(q, doc, where + ".rotation") * np.array(s)  # R·S
+    out[:3, 3] = t
+    return out
+
+
+def quaternion_matrix(q: list[float], doc: Document, where: str) -> np.ndarray:
+    """(3, 3) rotation of the unit quaternion ``q`` = (x, y, z, w), w the scalar (L3)."""
+    x, y, z, w = q
+    norm = np.sqrt(x * x + y * y + z * z + w * w)
+    if not norm > 1e-12:
+        raise doc.error(where, "zero-length quaternion")
+    x, y, z, w = x / norm, y / norm, z / norm, w / norm
+    return np.array([
+        [1 - 2 * (y * y + z * z), 2 * (x * y - z * w), 2 * (x * z + y * w)],
+        [2 * (x * y + z * w), 1 - 2 * (x * x + z * z), 2 * (y * z - x * w)],
+        [2 * (x * z - y * w), 2 * (y * z + x * w), 1 - 2 * (x * x + y * y)],
+    ])
+
+
+# ---------------------------------------------------------------- primitives ---------------
+
+def triangulate(order: np.ndarray, mode: int) -> np.ndarray:
+    """(k, 3) int32 triangles from a vertex order and a triangle mode (checklist L13).
+
+    Strip triangle i = (v_i, v_{i+1+i%2}, v_{i+2-i%2}); fan triangle i = (v_{i+1}, v_{i+2}, v_0).
+    ``order`` values must already be checked to lie below 2**31.
+    """
+    n = order.shape[0]
+    if mode == TRIANGLES:
+        return order[: n - n % 3].astype(np.int32).reshape(-1, 3)
+    order = order.astype(np.int32, copy=False)
+    k = max(n - 2, 0)
+    i = np.arange(k)
+    if mode == TRIANGLE_STRIP:
+        odd = i % 2
+        return np.stack([order[i], order[i + 1 + odd], order[i + 2 - odd]], axis=1)
+    return np.stack([order[i + 1], order[i + 2], np.repeat(order[:1], k)], axis=1)
+
+
+def triangle_count(n: int, mode: int) -> int:
+    return n // 3 if mode == TRIANGLES else max(n - 2, 0)
+
+
+class GeometryBuilder:
+    """Collects every primitive instance of a scene as world-space ``Piece``s.
+
+    ``needs_tangents(material)`` says whether a material samples a normal map and, if so, which
+    TEXCOORD set (None when it does not).
+    """
+
+    def __init__(self, doc: Document, reader: AccessorReader, material_count: int,
+                 needs_tangents: Callable[[int], int | None], max_triangles: int,
+                 draco: Callable | None = None):
+        self.doc = doc
+        self.reader = reader
+        self.material_count = material_count
+        self.needs_tangents = needs_tangents
+        self.max_triangles = max_triangles
+        self.draco = draco
+        self.pieces: list[Piece] = []
+        self.total_triangles = 0
+        self.dropped_non_finite = 0
+        self.dropped_zero_area = 0
+        self._local_triangles: dict[tuple, tuple] = {}
+        self._bounds_checked: set[int] = set()
+        self._decoded: set[tuple[int, int]] = set()
+
+    def add_scene(self, roots: list[int]) -> list[tuple[int, np.ndarray]]:
+        """Add every mesh instance under ``roots``; returns the nodes with world matrices."""
+        gltf, src = self.doc.gltf, self.doc.source
+        nodes = world_transforms(self.doc, roots)
+        for node_index, world in nodes:
+            mesh = gltf.nodes[node_index].mesh
+            if mesh is None:
+                continue
+            m = checks.index(mesh, gltf.meshes, src, f"nodes[{node_index}].mesh", "meshes")
+            if not np.all(np.isfinite(world)):
+                raise self.doc.error(f"nodes[{node_index}]", "world transform is not finite")
+            prims = checks.array(gltf.meshes[m].primitives, src, f"meshes[{m}].primitives")
+            for p in range(len(prims)):
+                self._add_primitive(m, p, world, node_index)
+        return nodes
+
+    def _add_primitive(self, m: int, p: int, world: np.ndarray, node_index: int) -> None:
+        doc, src, where = self.doc, self.doc.source, f"meshes[{m}].primitives[{p}]"
+        prim = doc.gltf.meshes[m].primitives[p]
+        extensions = checks.mapping(prim.extensions, src, where + ".extensions")
+        if "KHR_draco_mesh_compression" in extensions and (m, p) not in self._decoded:
+            self._decoded.add((m, p))  # once per primitive, however often it is instanced
+            if self.draco is not None:
+                self.draco(doc, self.reader, prim, where)
+            elif not _has_fallback(doc, prim):
+                raise doc.error(where + ".extensions.KHR_draco_mesh_compression",
+                                "Draco-compressed geometry needs the DracoPy package")
+        mode = checks.integer(prim.mode, src, where + ".mode", high=6, default=TRIANGLES)
+        if mode in MODE_NAMES:
+            doc.warn(f"{where}: {MODE_NAMES[mode]} primitive skipped (no surface to render)")
+            return
+        attributes = _attributes(prim, doc, where)
+        if "POSITION" not in attributes:
+            doc.warn(f"{where}: no POSITION attribute, primitive skipped")
+            return
+        reader = self.reader
+        position_index = attributes["POSITION"]
+        positions = reader.floats(position_index, where + ".attributes.POSITION", ("VEC3",))
+        n_vertices = positions.shape[0]
+        if position_index not in self._bounds_checked:
+            self._bounds_checked.add(position_index)
+            self._check_declared_bounds(position_index, positions)
+        local, drawn = self._triangles(prim, mode, positions, position_index, where)
+        self.total_triangles += drawn
+        if self.total_triangles > self.max_triangles:
+            raise doc.error(where, f"the scene exceeds the limit of {self.max_triangles} "
+                                   "triangles")
+        material = self.material_count
+        if prim.material is not None:
+            material = checks.index(prim.material, doc.gltf.materials, src,
+                                    where + ".material", "materials")
+
+        def attribute(name: str, types: tuple[str, ...]) -> np.ndarray | None:
+            if name not in attributes:
+                return None
+            data = reader.floats(attributes[name], f"{where}.attributes.{name}", types)
+            if data.shape[0] != n_vertices:
+                raise doc.error(f"{where}.attributes.{name}", f"count {data.shape[0]} differs "
+                                                              f"from POSITION count {n_vertices}")
+            return data
+
+        linear = world[:3, :3]
+        det = float(np.linalg.det(linear))
+        if not abs(det) > 1e-300:
+            doc.warn(f"nodes[{node_index}]: singular transform, mesh {m} skipped")
+            return
+        if det < 0:
+            local = local[:, [0, 2, 1]]  # Spec §Instantiation: mirrored, so flip the winding
+        piece = Piece(
+            positions=_transform_points(positions, world),
+            normals=np.zeros((0, 3), np.float32),
+            triangles=local,
+            material=material,
+            uv=[attribute("TEXCOORD_0", ("VEC2",)), attribute("TEXCOORD_1", ("VEC2",))],
+            colors=_rgba(attribute("COLOR_0", ("VEC3", "VEC4"))),
+            variants=self._variant_mapping(extensions, where),
+        )
+        _add_shading_frame(piece, attribute("NORMAL", ("VEC3",)), attribute, linear, det,
+                           self.needs_tangents(material))
+        self.pieces.append(piece)
+
+    def _check_declared_bounds(self, i: int, positions: np.ndarray) -> None:
+        """Warn when POSITION's declared min/max disagree with its data (checklist L11)."""
+        acc = self.doc.gltf.accessors[i]
+        try:
+            declared = np.array([acc.min, acc.max], np.float64).reshape(2, 3)
+        except (TypeError, ValueError):
+            return  # absent or malformed: nothing to compare with
+        # column by column: numpy's axis reductions over (v, 3) are slow
+        actual = np.array([[positions[:, k].min() for k in range(3)],
+                           [positions[:, k].max() for k in range(3)]], np.float64)
+        if not np.isfinite(actual).all():
+            return  # NaN/Inf vertices are reported when their triangles are dropped
+        tolerance = 1e-5 * (1.0 + np.abs(declared))
+        if not np.all(np.abs(actual - declared) <= tolerance):
+            self.doc.warn(f"accessors[{i}]: POSITION min/max {declared.tolist()} differ from "
+                          f"the data {actual.tolist()}")
+
+    def _triangles(self, prim, mode: int, positions: np.ndarray, position_index: int,
+                   where: str) -> tuple[np.ndarray, int]:
+        """Usable local (k, 3) triangles of a primitive and the count it draws before dropping.
+
+        Cached per (indices, mode, POSITION) so an instanced mesh is checked once.
+        """
+        if prim.indices is not None:
+            checks.index(prim.indices, self.doc.gltf.accessors, self.doc.source,
+                         where + ".indices", "accessors")
+        key = (prim.indices, mode, position_index)
+        if key not in self._local_triangles:
+            self._local_triangles[key] = self._new_triangles(prim, mode, positions, where)
+        local, drawn, non_finite, zero_area = self._local_triangles[key]
+        self.dropped_non_finite += non_finite
+        self.dropped_zero_area += zero_area
+        return local, drawn
+
+    def warn_dropped(self) -> None:
+        if self.dropped_non_finite:
+            self.doc.warn(f"{self.dropped_non_finite} triangles with NaN or infinite vertices "
+                          "dropped")
+        if self.dropped_zero_area:
+            self.doc.warn(f"{self.dropped_zero_area} degenerate (zero-area) triangles dropped")
+
+    def _new_triangles(self, prim, mode: int, positions: np.ndarray, where: str):
+        n_vertices = positions.shape[0]
+        if prim.indices is None:
+            order = np.arange(n_vertices, dtype=np.int32)
+        else:
+            order = self.reader.indices(prim.indices, where + ".indices")
+            if order.size:
+                top = int(order.max())
+                if top == RESTART.get(order.dtype):
+                    raise self.doc.error(where + ".indices", f"contains the primitive-restart "
+                                                             f"value {top} (Spec §Meshes)")
+                if top >= n_vertices:
+                    raise self.doc.error(where + ".indices", f"index {top} is out of range "
+                                                             f"({n_vertices} vertices)")
+        if mode == TRIANGLES and order.shape[0] % 3:
+            self.doc.warn(f"{where}: {order.shape[0]} indices is not a multiple of 3; "
+                          "the remainder is ignored")
+        local = triangulate(order, mode)
+        bad, zero = unusable_triangles(positions, local)
+        drop = bad | zero
+        if drop.any():
+            return local[~drop], local.shape[0], int(bad.sum()), int(zero.sum())
+        return local, local.shape[0], 0, 0
+
+    def _variant_mapping(self, extensions: dict, where: str) -> dict[int, int]:
+        """KHR_materials_variants: variant index -> material for this primitive."""
+        ext = extensions.get("KHR_materials_variants")
+        if ext is None:
+            return {}
+        src, here = self.doc.source, where + ".extensions.KHR_materials_variants"
+        count = len(self.doc.variant_names)
+        out: dict[int, int] = {}
+        mappings = checks.array(checks.mapping(ext, src, here).get("mappings"), src,
+                                here + ".mappings")
+        for k, mapping in enumerate(mappings):
+            mapping = checks.mapping(mapping, src, f"{here}.mappings[{k}]")
+            material = checks.index(mapping.get("material"), self.doc.gltf.materials, src,
+                                    f"{here}.mappings[{k}].material", "materials")
+            variants = checks.array(mapping.get("variants"), src, f"{here}.mappings[{k}].variants")
+            for j, v in enumerate(variants):
+                if not (isinstance(v, int) and not isinstance(v, bool) and 0 <= v < count):
+                    raise self.doc.error(f"{here}.mappings[{k}].variants[{j}]",
+                                         f"variant {v!r:.20} does not exist ({count} defined)")
+                out[v] = material
+        return out
+
+
+def _add_shading_frame(piece: Piece, normals: np.ndarray | None, attribute: Callable,
+                       linear: np.ndarray, det: float, texcoord: int | None) -> None:
+    """World normals (inverse-transpose, renormalised) and tangents, given or generated."""
+    if normals is None:
+        _make_flat(piece)  # Spec §Meshes: flat normals; TANGENT is then ignored
+    else:
+        piece.normals = _unit(_transform_vectors(normals, np.linalg.inv(linear).T))
+        tangents = attribute("TANGENT", ("VEC4",))
+        if tangents is not None:
+            piece.tangents = _world_tangents(tangents, linear, det)
+    if texcoord is not None and piece.tangents is None:  # a normal map needs a tangent frame
+        piece.tangents = generate_tangents(piece.positions, piece.normals, piece.triangles,
+                                           piece.uv[min(texcoord, 1)])
+
+
+def _has_fallback(doc: Document, prim) -> bool:
+    """Whether a compressed primitive also carries uncompressed POSITION data."""
+    position = _attributes(prim, doc, "").get("POSITION")
+    return position is not None and doc.gltf.accessors[position].bufferView is not None
+
+
+def _attributes(prim, doc: Document, where: str) -> dict[str, int]:
+    raw = prim.attributes
+    if isinstance(raw, pygltflib.Attributes):
+        raw = vars(raw)
+    if not isinstance(raw, dict):
+        raise doc.error(f"{where}.attributes", "must be a JSON object")
+    out = {}
+    for name, value in raw.items():
+        if value is None:
+            continue
+        out[name] = checks.index(value, doc.gltf.accessors, doc.source,
+                                 f"{where}.attributes.{name}", "accessors")
+    return out
+
+
+# ---------------------------------------------------------------- attribute maths ----------
+
+def _transform_points(points: np.ndarray, world: np.ndarray) -> np.ndarray:
+    """(v, 3) float32 world positions, a new C-contiguous array.
+
+    float32 arithmetic: the result is float32 anyway, and numpy's float64 path is several
+    times slower on (v, 3) arrays.
+    """
+    linear = world[:3, :3]
+    offset = world[:3, 3].astype(np.float32)
+    if np.array_equal(linear, np.eye(3)):
+        return points + offset
+    out = np.einsum("ij,kj->ik", points, linear.astype(np.float32))
+    out += offset
+    return out
+
+
+def _transform_vectors(vectors: np.ndarray, matrix: np.ndarray) -> np.ndarray:
+    """(v, 3) float32 ``matrix @ vector`` for each row."""
+    return np.einsum("ij,kj->ik", vectors, matrix.astype(np.float32))
+
+
+def _unit(v: np.ndarray) -> np.ndarray:
+    """Rows scaled to unit length; zero or non-finite rows become zeros (fixed later)."""
+    v = np.asarray(v, np.float32)
+    length = np.sqrt(np.einsum("ij,ij->i", v, v))
+    bad = ~(length > 0) | ~np.isfinite(length)  # the first catches NaN too
+    length[bad] = 1.0
+    out = v / length[:, None]
+    out[bad] = 0.0
+    return out
+
+
+def _rgba(colors: np.ndarray | None) -> np.ndarray | None:
+    """COLOR_0 as (v, 4); VEC3 gets alpha 1 (Spec §Meshes)."""
+    if colors is None or colors.shape[1] == 4:
+        return colors
+    return np.concatenate([colors, np.ones((colors.shape[0], 1), np.float32)], axis=1)
+
+
+def _world_tangents(tangents: np.ndarray, linear: np.ndarray, det: float) -> np.ndarray:
+    """Tangents follow the model matrix; a mirror flips the bitangent sign w."""
+    out = np.empty((tangents.shape[0], 4), np.float32)
+    out[:, :3] = _unit(_transform_vectors(tangents[:, :3], linear))
+    out[:, 3] = np.where(tangents[:, 3] < 0, -1.0, 1.0) * (1.0 if det > 0 else -1.0)
+    return out
+
+
+def unusable_triangles(positions: np.ndarray,
+                       triangles: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Masks (k,) of triangles touching a NaN/Inf vertex, and of the other zero-area ones.
+
+    Works on one coordinate column at a time: gathering 1-D float32 arrays is several times
+    faster than gathering (v, 3) rows.
+    """
+    a, b, c = triangles[:, 0], triangles[:, 1], triangles[:, 2]
+    if np.isfinite(positions).all():
+        non_finite = np.zeros(triangles.shape[0], bool)
+    else:
+        finite = np.isfinite(positions[:, 0]) & np.isfinite(positions[:, 1]) \
+            & np.isfinite(positions[:, 2])
+        non_finite = ~(finite[a] & finite[b] & finite[c])
+    edges = []
+    for axis in range(3):
+        column = np.ascontiguousarray(positions[:, axis])
+        origin = column[a]
+        edges.append((column[b] - origin, column[c] - origin))
+    (x1, x2), (y1, y2), (z1, z2) = edges
+    # the cross product is zero exactly when all three of its components are
+    zero = (y1 * z2 == z1 * y2) & (z1 * x2 == x1 * z2) & (x1 * y2 == y1 * x2)
+    return non_finite, zero & ~non_finite
+
+
+def face_normals(positions: np.ndarray, triangles: np.ndarray) -> np.ndarray:
+    """(k, 3) float32 unit normals of counter-clockwise triangles (zeros when degenerate)."""
+    a, b, c = (np.take(positions, triangles[:, k], axis=0).astype(np.float64) for k in range(3))
+    return _unit(np.cross(b - a, c - a))
+
+
+def _make_flat(piece: Piece) -> None:
+    """Give every triangle its own three vertices with the face normal (Spec §Meshes)."""
+    tris = piece.triangles
+    flat = tris.reshape(-1)
+    piece.normals = np.repeat(face_normals(piece.positions, tris), 3, axis=0)
+    piece.positions = np.take(piece.positions, flat, axis=0)
+    piece.uv = [None if uv is None else np.take(uv, flat, axis=0) for uv in piece.uv]
+    piece.colors = None if piece.colors is None else np.take(piece.colors, flat, axis=0)
+    piece.triangles = np.arange(flat.shape[0], dtype=np.int32).reshape(-1, 3)
+    piece.tangents = None
+
+
+def generate_tangents(positions: np.ndarray, normals: np.ndarray, triangles: np.ndarray,
+                      uv: np.ndarray | None) -> np.ndarray:
+    """(v, 4) float32 tangents from UV derivatives, averaged per vertex (Lengyel's method).
+
+    T follows +u. glTF's v runs down the image, so the bitangent B = cross(N, T)·w must point
+    toward decreasing v (checklist M6): w = sign(dot(cross(N, T), -dP/dv)).
+    """
+    v = positions.shape[0]
+    out = np.zeros((v, 4), np.float32)
+    out[:, 3] = 1.0
+    if uv is None or triangles.shape[0] == 0:
+        out[:, :3] = _any_perpendicular(normals)
+        return out
+    p = positions.astype(np.float64)
+    t = uv.astype(np.float64)
+    i0, i1, i2 = triangles[:, 0], triangles[:, 1], triangles[:, 2]
+    e1, e2 = p[i1] - p[i0], p[i2] - p[i0]
+    d1, d2 = t[i1] - t[i0], t[i2] - t[i0]
+    det = d1[:, 0] * d2[:, 1] - d2[:, 0] * d1[:, 1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r = np.where(np.abs(det) > 1e-20, 1.0 / det, 0.0)[:, None]
+    dp_du = (e1 * d2[:, 1:2] - e2 * d1[:, 1:2]) * r
+    dp_dv = (e2 * d1[:, 0:1] - e1 * d2[:, 0:1]) * r
+    tan = np.zeros((v, 3))
+    bit = np.zeros((v, 3))
+    for corner in (i0, i1, i2):
+        for axis in range(3):
+            tan[:, axis] += np.bincount(corner, dp_du[:, axis], minlength=v)
+            bit[:, axis] += np.bincount(corner, dp_dv[:, axis], minlength=v)
+    n = normals.astype(np.float64)
+    tan -= n * np.einsum("ij,ij->i", n, tan)[:, None]  # Gram-Schmidt against N
+    unit = _unit(tan)
+    missing = ~unit.any(axis=1)
+    unit[missing] = _any_perpendicular(normals[missing])
+    out[:, :3] = unit
+    handed = np.einsum("ij,ij->i", np.cross(n, unit), -bit)
+    out[:, 3] = np.where(handed < 0, -1.0, 1.0)
+    return out
+
+
+def _any_perpendicular(normals: np.ndarray) -> np.ndarray:
+    """Unit vectors perpendicular to each normal (for tangents without usable UVs)."""
+    helper = np.where(np.abs(normals[:, :1]) < 0.9, [[1.0, 0.0, 0.0]], [[0.0, 1.0, 0.0]])
+    out = _unit(np.cross(normals, helper).astype(np.float32))
+    out[~out.any(axis=1)] = (1.0, 0.0, 0.0)
+    return out

@@ -1,0 +1,1 @@
+"""Numba kernels: the hot loops over flat arrays (BVH, intersection, shading)."""

@@ -1,0 +1,493 @@
+"""Binned-SAH BVH build (Wald 2007) and its flattening into 4-wide nodes.
+
+Build: top-down over an index list. At each node the triangle centroids are sorted into ``bins``
+equal bins per axis; every plane between bins is scored with the surface area heuristic
+(Goldsmith & Salmon 1987; MacDonald & Booth 1990)
+
+    C = c_trav + c_isect · (A_L·N_L + A_R·N_R) / A
+
+and the node becomes a leaf when C_leaf = c_isect · N is no worse (and N <= max_leaf). Counts and
+min/max bounds are exact, so the tree does not depend on the order of evaluation.
+
+Flat layout (what traversal reads), WIDTH = 4 children per node:
+    node_bounds : (m, 6, WIDTH) float32, rows min x, max x, min y, max y, min z, max z, one column
+        per child (structure of arrays, so the four slab tests run side by side). Empty slots have
+        min = +inf, max = -inf and are never entered.
+    node_links : (m, WIDTH) int32. >= 0: index of an inner node. < 0: a leaf, ~link = start << 4 |
+        count (triangles start .. start+count-1 of the leaf-ordered arrays); count 0 = empty slot.
+Node 0 is the root; nodes are in depth-first order.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit, prange
+
+WIDTH = 4
+LEAF_BITS = 4
+MAX_LEAF = (1 << LEAF_BITS) - 1  # triangles per leaf that the link encoding can hold
+SAH_MAX_DEPTH = 64  # below this depth, object-median splits bound the tree depth
+TASK_STACK = 256
+
+
+# Columns of a primitive record: box min (0..2), box max (3..5), box centre (6..8).
+P_LO, P_HI, P_C = 0, 3, 6
+PAR_MIN = 1 << 15  # nodes with more triangles bin in parallel and are split before subtrees
+PAR_CHUNKS = 16  # fixed chunks for parallel binning (not the thread count: results never vary)
+
+
+@njit(cache=True, parallel=True)
+def triangle_records(positions, triangles):
+    """One record per triangle: (n, 9) float32 = box min, box max, box centre."""
+    n = triangles.shape[0]
+    prims = np.empty((n, 9), np.float32)
+    for k in prange(n):
+        for a in range(3):
+            p0 = positions[triangles[k, 0], a]
+            p1 = positions[triangles[k, 1], a]
+            p2 = positions[triangles[k, 2], a]
+            lo = min(p0, p1, p2)
+            hi = max(p0, p1, p2)
+            prims[k, P_LO + a] = lo
+            prims[k, P_HI + a] = hi
+            prims[k, P_C + a] = np.float32(0.5) * (lo + hi)
+    return prims
+
+
+@njit(cache=True)
+def half_area(box):
+    """Half the surface area of a box stored as (min x, y, z, max x, y, z)."""
+    dx = np.float64(box[3]) - box[0]
+    dy = np.float64(box[4]) - box[1]
+    dz = np.float64(box[5]) - box[2]
+    return dx * dy + dy * dz + dz * dx
+
+
+@njit(cache=True)
+def empty_box(box):
+    box[:3] = np.inf
+    box[3:] = -np.inf
+
+
+@njit(cache=True)
+def range_bounds(prims, start, end, box, cbox):
+    """Bounds of the boxes and of the centres of prims[start:end]."""
+    empty_box(box)
+    empty_box(cbox)
+    for k in range(start, end):
+        for a in range(3):
+            box[a] = min(box[a], prims[k, P_LO + a])
+            box[3 + a] = max(box[3 + a], prims[k, P_HI + a])
+            cbox[a] = min(cbox[a], prims[k, P_C + a])
+            cbox[3 + a] = max(cbox[3 + a], prims[k, P_C + a])
+
+
+@njit(cache=True)
+def bin_scales(cbox, bins, scale):
+    """Per axis: centroid → bin factor (0 where the centres do not spread)."""
+    for a in range(3):
+        extent = np.float64(cbox[3 + a]) - cbox[a]
+        scale[a] = bins * (1.0 - 1e-6) / extent if extent > 0.0 else 0.0
+
+
+@njit(cache=True)
+def bin_of(c, c_lo, scale, bins):
+    """Bin of centroid coordinate ``c`` (same expression in binning and partitioning)."""
+    b = int((np.float64(c) - c_lo) * scale)
+    return min(max(b, 0), bins - 1)
+
+
+@njit(cache=True)
+def bin_prims(prims, start, end, cbox, scale, bins, counts, boxes):
+    """Add prims[start:end] to the bins of all three axes: counts (3, bins) and boxes
+    (3, bins, 6) (which the caller has cleared)."""
+    for k in range(start, end):
+        for a in range(3):
+            b = bin_of(prims[k, P_C + a], cbox[a], scale[a], bins)
+            counts[a, b] += 1
+            for j in range(3):
+                boxes[a, b, j] = min(boxes[a, b, j], prims[k, P_LO + j])
+                boxes[a, b, 3 + j] = max(boxes[a, b, 3 + j], prims[k, P_HI + j])
+
+
+@njit(cache=True)
+def clear_bins(counts, boxes):
+    counts[:] = 0
+    boxes[..., :3] = np.inf
+    boxes[..., 3:] = -np.inf
+
+
+@njit(cache=True, parallel=True)
+def bin_prims_parallel(prims, start, end, cbox, scale, bins, counts, boxes):
+    """``bin_prims`` over PAR_CHUNKS chunks in parallel; counts and min/max merge exactly, so
+    the bins are identical to the serial ones."""
+    part_counts = np.zeros((PAR_CHUNKS, 3, bins), np.int64)
+    part_boxes = np.empty((PAR_CHUNKS, 3, bins, 6), np.float32)
+    size = (end - start + PAR_CHUNKS - 1) // PAR_CHUNKS
+    for c in prange(PAR_CHUNKS):
+        clear_bins(part_counts[c], part_boxes[c])
+        lo = start + c * size
+        bin_prims(prims, lo, min(end, lo + size), cbox, scale, bins, part_counts[c],
+                  part_boxes[c])  # fmt: skip
+    for c in range(PAR_CHUNKS):
+        for a in range(3):
+            for b in range(bins):
+                counts[a, b] += part_counts[c, a, b]
+                for j in range(3):
+                    boxes[a, b, j] = min(boxes[a, b, j], part_boxes[c, a, b, j])
+                    boxes[a, b, 3 + j] = max(boxes[a, b, 3 + j], part_boxes[c, a, b, 3 + j])
+
+
+@njit(cache=True)
+def best_split(counts, boxes, scale, bins, c_trav, c_isect, area, n, right_area, run):
+    """Score every bin plane of every axis; return (cost, axis, plane) of the cheapest, plane =
+    first bin of the right side, cost = inf when no plane separates the centres."""
+    best_cost, best_axis, best_plane = np.inf, -1, -1
+    for a in range(3):
+        if scale[a] == 0.0:
+            continue
+        empty_box(run)  # sweep from the right: area of bins plane..bins-1
+        for b in range(bins - 1, 0, -1):
+            for j in range(3):
+                run[j] = min(run[j], boxes[a, b, j])
+                run[3 + j] = max(run[3 + j], boxes[a, b, 3 + j])
+            right_area[b] = half_area(run)
+        empty_box(run)  # sweep from the left and score each plane
+        n_left = 0
+        for plane in range(1, bins):
+            b = plane - 1
+            n_left += counts[a, b]
+            for j in range(3):
+                run[j] = min(run[j], boxes[a, b, j])
+                run[3 + j] = max(run[3 + j], boxes[a, b, 3 + j])
+            n_right = n - n_left
+            if n_left == 0 or n_right == 0:
+                continue
+            cost = c_trav + c_isect * (half_area(run) * n_left + right_area[plane] * n_right) / area
+            if cost < best_cost:
+                best_cost, best_axis, best_plane = cost, a, plane
+    return best_cost, best_axis, best_plane
+
+
+@njit(cache=True)
+def swap_records(prims, order, i, j):
+    for c in range(9):
+        prims[i, c], prims[j, c] = prims[j, c], prims[i, c]
+    order[i], order[j] = order[j], order[i]
+
+
+@njit(cache=True)
+def grow(box, cbox, prims, k):
+    for a in range(3):
+        box[a] = min(box[a], prims[k, P_LO + a])
+        box[3 + a] = max(box[3 + a], prims[k, P_HI + a])
+        cbox[a] = min(cbox[a], prims[k, P_C + a])
+        cbox[3 + a] = max(cbox[3 + a], prims[k, P_C + a])
+
+
+@njit(cache=True)
+def partition(prims, order, start, end, axis, c_lo, scale, bins, plane, boxes):
+    """Reorder prims[start:end] so those with bin < plane come first; return the middle.
+    ``boxes`` (4, 6) receives the left box, left centre bounds, right box, right centre bounds."""
+    for r in range(4):
+        empty_box(boxes[r])
+    i, j = start, end - 1
+    while i <= j:
+        if bin_of(prims[i, P_C + axis], c_lo, scale, bins) < plane:
+            grow(boxes[0], boxes[1], prims, i)
+            i += 1
+        else:
+            grow(boxes[2], boxes[3], prims, i)
+            swap_records(prims, order, i, j)
+            j -= 1
+    return i
+
+
+@njit(cache=True)
+def median_split(prims, order, start, end, boxes):
+    """Sort prims[start:end] by centre along the widest centre axis; return the middle. Used when
+    the centres coincide or the tree got too deep for SAH."""
+    cbox = np.empty(6, np.float32)
+    box = np.empty(6, np.float32)
+    range_bounds(prims, start, end, box, cbox)
+    axis = 0
+    for a in range(1, 3):
+        if cbox[3 + a] - cbox[a] > cbox[3 + axis] - cbox[axis]:
+            axis = a
+    idx = np.argsort(prims[start:end, P_C + axis], kind="mergesort") + start  # stable
+    prims[start:end] = prims[idx]
+    order[start:end] = order[idx]
+    mid = (start + end) // 2
+    range_bounds(prims, start, mid, boxes[0], boxes[1])
+    range_bounds(prims, mid, end, boxes[2], boxes[3])
+    return mid
+
+
+@njit(cache=True)
+def split_node(prims, order, start, end, depth, box, cbox, bins, c_trav, c_isect, max_leaf,
+               counts, bin_boxes, scratch, scale, parallel_bins):  # fmt: skip
+    """Decide how to split one node. Returns the middle index, or -1 for a leaf; the children's
+    boxes and centre bounds land in scratch[0:4]."""
+    count = end - start
+    if count <= 1:
+        return -1
+    if depth < SAH_MAX_DEPTH:
+        bin_scales(cbox, bins, scale)
+        if scale[0] + scale[1] + scale[2] > 0.0:
+            clear_bins(counts, bin_boxes)
+            if parallel_bins:
+                bin_prims_parallel(prims, start, end, cbox, scale, bins, counts, bin_boxes)
+            else:
+                bin_prims(prims, start, end, cbox, scale, bins, counts, bin_boxes)
+            area = half_area(box)
+            if area <= 0.0:
+                area = 1.0  # a degenerate box: any split is as good as any other
+            cost, axis, plane = best_split(counts, bin_boxes, scale, bins, c_trav, c_isect, area,
+                                           count, scratch[4], scratch[5])  # fmt: skip
+            if count <= max_leaf and cost >= c_isect * count:
+                return -1
+            if axis >= 0:
+                return partition(prims, order, start, end, axis, cbox[axis], scale[axis], bins,
+                                 plane, scratch)  # fmt: skip
+    if count <= max_leaf:
+        return -1
+    return median_split(prims, order, start, end, scratch)
+
+
+@njit(cache=True)
+def build_subtree(prims, order, root, start, end, depth, box, cbox, first_free, bins, c_trav,
+                  c_isect, max_leaf, node_box, node_left, node_start, node_count):  # fmt: skip
+    """Build the subtree of node ``root`` over prims[start:end] serially, taking new nodes from
+    ``first_free`` on (at most 2·count - 2 of them). Returns the next free node."""
+    counts = np.zeros((3, bins), np.int64)
+    bin_boxes = np.empty((3, bins, 6), np.float32)
+    scratch = np.empty((6, max(bins, 6)), np.float32)
+    scale = np.empty(3, np.float64)
+    task_node = np.empty(TASK_STACK, np.int64)
+    task_range = np.empty((TASK_STACK, 3), np.int64)  # start, end, depth
+    task_box = np.empty((TASK_STACK, 12), np.float32)  # box, centre bounds
+    task_node[0] = root
+    task_range[0] = (start, end, depth)
+    task_box[0, :6] = box
+    task_box[0, 6:] = cbox
+    sp = 1
+    free = first_free
+    while sp > 0:
+        sp -= 1
+        node = task_node[sp]
+        lo, hi, d = task_range[sp, 0], task_range[sp, 1], task_range[sp, 2]
+        node_box[node] = task_box[sp, :6]
+        node_start[node] = lo
+        node_count[node] = hi - lo
+        mid = split_node(prims, order, lo, hi, d, task_box[sp, :6], task_box[sp, 6:], bins,
+                         c_trav, c_isect, max_leaf, counts, bin_boxes, scratch, scale, False)  # fmt: skip
+        if mid < 0:
+            continue
+        node_left[node] = free
+        node_count[node] = 0
+        # Right child below left on the stack, so the left subtree is built first.
+        task_node[sp] = free + 1
+        task_range[sp] = (mid, hi, d + 1)
+        task_box[sp, :6] = scratch[2, :6]
+        task_box[sp, 6:] = scratch[3, :6]
+        task_node[sp + 1] = free
+        task_range[sp + 1] = (lo, mid, d + 1)
+        task_box[sp + 1, :6] = scratch[0, :6]
+        task_box[sp + 1, 6:] = scratch[1, :6]
+        sp += 2
+        free += 2
+    return free
+
+
+@njit(cache=True, parallel=True)
+def build_binary(prims, bins, c_trav, c_isect, max_leaf):
+    """Binned-SAH binary BVH over triangle records (reordered in place into leaf order).
+
+    Nodes with more than PAR_MIN triangles are split first, one at a time with parallel binning;
+    the subtrees below them are then built in parallel, each into its own range of node slots.
+
+    Returns
+    -------
+    order : (n,) int32, original triangle index of each record after reordering.
+    node_box : (b, 6) float32 node bounds (min xyz, max xyz).
+    node_left : (b,) int32, first of the two consecutive children, or -1 for a leaf.
+    node_start, node_count : (b,) int32, leaf range. Unused slots have count 0 and no parent.
+    """
+    n = prims.shape[0]
+    order = np.arange(n).astype(np.int32)
+    cap = max(2 * n, 2)
+    node_box = np.empty((cap, 6), np.float32)
+    node_left = np.full(cap, -1, np.int32)
+    node_start = np.zeros(cap, np.int32)
+    node_count = np.zeros(cap, np.int32)
+    box = np.empty(6, np.float32)
+    cbox = np.empty(6, np.float32)
+    range_bounds(prims, 0, n, box, cbox)
+    # Top: split big nodes (breadth first); collect the subtrees left to build.
+    counts = np.zeros((3, bins), np.int64)
+    bin_boxes = np.empty((3, bins, 6), np.float32)
+    scratch = np.empty((6, max(bins, 6)), np.float32)
+    scale = np.empty(3, np.float64)
+    n_sub_max = 4 * (n // PAR_MIN) + 16  # lopsided splits stop the top phase early
+    sub_node = np.empty(n_sub_max, np.int64)
+    sub_range = np.empty((n_sub_max, 3), np.int64)
+    sub_box = np.empty((n_sub_max, 12), np.float32)
+    sub_node[0] = 0
+    sub_range[0] = (0, n, 0)
+    sub_box[0, :6] = box
+    sub_box[0, 6:] = cbox
+    n_sub = 1
+    free = 1
+    k = 0
+    while k < n_sub:
+        lo, hi, d = sub_range[k, 0], sub_range[k, 1], sub_range[k, 2]
+        if hi - lo <= PAR_MIN or n_sub == n_sub_max:
+            k += 1
+            continue
+        node = sub_node[k]
+        node_box[node] = sub_box[k, :6]
+        node_start[node] = lo
+        node_count[node] = hi - lo
+        mid = split_node(prims, order, lo, hi, d, sub_box[k, :6], sub_box[k, 6:], bins, c_trav,
+                         c_isect, max_leaf, counts, bin_boxes, scratch, scale, True)  # fmt: skip
+        if mid < 0:
+            k += 1
+            continue
+        node_left[node] = free
+        node_count[node] = 0
+        # Replace task k by its left child and append the right one.
+        sub_node[k] = free
+        sub_range[k] = (lo, mid, d + 1)
+        sub_box[k, :6] = scratch[0, :6]
+        sub_box[k, 6:] = scratch[1, :6]
+        sub_node[n_sub] = free + 1
+        sub_range[n_sub] = (mid, hi, d + 1)
+        sub_box[n_sub, :6] = scratch[2, :6]
+        sub_box[n_sub, 6:] = scratch[3, :6]
+        n_sub += 1
+        free += 2
+    # Subtrees in parallel: subtree k may use 2·count - 2 slots from first[k].
+    first = np.empty(n_sub + 1, np.int64)
+    first[0] = free
+    for k in range(n_sub):
+        first[k + 1] = first[k] + max(2 * (sub_range[k, 1] - sub_range[k, 0]) - 2, 0)
+    for k in prange(n_sub):
+        build_subtree(prims, order, sub_node[k], sub_range[k, 0], sub_range[k, 1],
+                      sub_range[k, 2], sub_box[k, :6], sub_box[k, 6:], first[k], bins, c_trav,
+                      c_isect, max_leaf, node_box, node_left, node_start, node_count)  # fmt: skip
+    used = first[n_sub]
+    return order, node_box[:used], node_left[:used], node_start[:used], node_count[:used]
+
+
+@njit(cache=True)
+def leaf_link(start, count):
+    """Encode a leaf range as a negative link."""
+    return ~((start << LEAF_BITS) | count)
+
+
+@njit(cache=True)
+def collapse_wide(node_box, node_left, node_start, node_count):
+    """Collapse a binary BVH into WIDTH-wide nodes (repeatedly open the child with the largest
+    surface area), laid out depth first.
+
+    Returns
+    -------
+    node_bounds : (m, 6, WIDTH) float32 and node_links : (m, WIDTH) int32 (see module docstring).
+    """
+    cap = max(node_box.shape[0], 1)
+    bounds = np.empty((cap, 6, WIDTH), np.float32)
+    links = np.empty((cap, WIDTH), np.int32)
+    stack_bin = np.empty(TASK_STACK * WIDTH, np.int64)  # binary inner node to expand
+    stack_parent = np.empty(TASK_STACK * WIDTH, np.int64)  # wide node and slot that link to it
+    stack_slot = np.empty(TASK_STACK * WIDTH, np.int64)
+    kids = np.empty(WIDTH, np.int64)
+    stack_bin[0], stack_parent[0], stack_slot[0] = 0, -1, 0
+    sp = 1
+    m = 0
+    while sp > 0:
+        sp -= 1
+        b = stack_bin[sp]
+        node = m
+        m += 1
+        if stack_parent[sp] >= 0:
+            links[stack_parent[sp], stack_slot[sp]] = node
+        # Gather up to WIDTH children by opening the largest inner child.
+        if node_left[b] < 0:
+            kids[0] = b
+            n_kids = 1
+        else:
+            kids[0], kids[1] = node_left[b], node_left[b] + 1
+            n_kids = 2
+        while n_kids < WIDTH:
+            pick, pick_area = -1, -1.0
+            for j in range(n_kids):
+                c = kids[j]
+                if node_left[c] >= 0:
+                    a = half_area(node_box[c])
+                    if a > pick_area:
+                        pick, pick_area = j, a
+            if pick < 0:
+                break
+            c = kids[pick]
+            kids[pick] = node_left[c]
+            kids[n_kids] = node_left[c] + 1
+            n_kids += 1
+        for j in range(WIDTH):
+            if j >= n_kids:
+                for a in range(3):
+                    bounds[node, 2 * a, j] = np.inf
+                    bounds[node, 2 * a + 1, j] = -np.inf
+                links[node, j] = leaf_link(0, 0)
+                continue
+            c = kids[j]
+            for a in range(3):
+                bounds[node, 2 * a, j] = node_box[c, a]
+                bounds[node, 2 * a + 1, j] = node_box[c, 3 + a]
+            if node_left[c] < 0:
+                links[node, j] = leaf_link(node_start[c], node_count[c])
+        # Push inner children in reverse so slot 0's subtree comes next (depth-first layout).
+        for j in range(n_kids - 1, -1, -1):
+            c = kids[j]
+            if node_left[c] >= 0:
+                stack_bin[sp], stack_parent[sp], stack_slot[sp] = c, node, j
+                sp += 1
+    return bounds[:m].copy(), links[:m].copy()
+
+
+@njit(cache=True, parallel=True)
+def gather_vertices(positions, triangles, order):
+    """Triangle vertices in leaf order: (n, 9) float32 rows p0 p1 p2 (original vertex order)."""
+    n = order.shape[0]
+    verts = np.empty((n, 9), np.float32)
+    for k in prange(n):
+        p = order[k]
+        for c in range(3):
+            for a in range(3):
+                verts[k, 3 * c + a] = positions[triangles[p, c], a]
+    return verts
+
+
+@njit(cache=True)
+def sah_cost(node_bounds, node_links, c_trav, c_isect):
+    """SAH cost of the wide tree relative to its root box: c_trav per node visit and c_isect per
+    triangle, each weighted by the probability of a random line through the root hitting it."""
+    root = np.empty(6, np.float32)
+    child = np.empty(6, np.float32)
+    for a in range(3):
+        root[a] = node_bounds[0, 2 * a].min()
+        root[3 + a] = node_bounds[0, 2 * a + 1].max()
+    root_area = half_area(root)
+    if root_area <= 0.0:
+        return 0.0
+    cost = c_trav  # the root is always visited
+    for node in range(node_bounds.shape[0]):
+        for j in range(WIDTH):
+            link = node_links[node, j]
+            for a in range(3):
+                child[a] = node_bounds[node, 2 * a, j]
+                child[3 + a] = node_bounds[node, 2 * a + 1, j]
+            if link >= 0:
+                cost += c_trav * half_area(child) / root_area
+            elif (~link) & MAX_LEAF:
+                cost += c_isect * ((~link) & MAX_LEAF) * half_area(child) / root_area
+    return cost

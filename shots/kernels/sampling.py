@@ -1,0 +1,123 @@
+"""Deterministic random numbers and sample warps for the tracer.
+
+Every random number is a pure function of (seed, pixel, sample, dimension) through an integer
+hash, so an image does not depend on how many threads rendered it or in which order.
+"""
+
+from __future__ import annotations
+
+import math
+
+from numba import njit
+
+MASK32 = 0xFFFFFFFF
+
+
+@njit(cache=True)
+def pcg_hash(x):
+    """32-bit PCG output permutation as a hash (Jarzynski & Olano 2020, JCGT 9(3), "pcg")."""
+    state = (x * 747796405 + 2891336453) & MASK32
+    shift = (state >> 28) + 4
+    word = (((state >> shift) ^ state) * 277803737) & MASK32
+    return ((word >> 22) ^ word) & MASK32
+
+
+@njit(cache=True)
+def random01(seed, pixel, sample, dim):
+    """A uniform number in [0, 1) addressed by its coordinates (all non-negative ints)."""
+    h = pcg_hash((seed & MASK32) ^ pcg_hash(pixel & MASK32))
+    h = pcg_hash(h ^ (sample & MASK32))
+    h = pcg_hash(h ^ ((dim * 0x9E3779B9) & MASK32))
+    return h * (1.0 / 4294967296.0)
+
+
+@njit(cache=True)
+def stratum(index, count, u1, u2):
+    """Point ``index`` of a jittered grid of ``count`` cells over [0, 1)², jitter (u1, u2).
+
+    The grid is ceil(√count) wide; with a square count every cell holds exactly one sample.
+    """
+    nx = int(math.ceil(math.sqrt(count)))
+    ny = (count + nx - 1) // nx
+    ix = index % nx
+    iy = index // nx
+    return (ix + u1) / nx, (iy + u2) / ny
+
+
+@njit(cache=True)
+def tent_warp(u):
+    """Map u in [0, 1) to an offset in (−1, 1) distributed as the tent filter 1 − |x|.
+
+    Filter importance sampling (Ernst, Stamminger & Greiner 2006): samples drawn from the filter
+    need no weights and no splatting across pixels.
+    """
+    v = 2.0 * u
+    if v < 1.0:
+        return math.sqrt(v) - 1.0
+    return 1.0 - math.sqrt(2.0 - v)
+
+
+@njit(cache=True)
+def cosine_hemisphere(u1, u2):
+    """Cosine-weighted direction on the +z hemisphere (Malley's method); pdf = cos θ / π."""
+    r = math.sqrt(u1)
+    phi = 2.0 * math.pi * u2
+    return r * math.cos(phi), r * math.sin(phi), math.sqrt(max(0.0, 1.0 - u1))
+
+
+@njit(cache=True)
+def orthonormal_basis(nx, ny, nz):
+    """Tangent and bitangent completing unit n to a right-handed frame.
+
+    Duff et al. 2017, "Building an Orthonormal Basis, Revisited", JCGT 6(1).
+    """
+    sign = 1.0 if nz >= 0.0 else -1.0
+    a = -1.0 / (sign + nz)
+    b = nx * ny * a
+    return (
+        1.0 + sign * nx * nx * a,
+        sign * b,
+        -sign * nx,
+        b,
+        sign + ny * ny * a,
+        -ny,
+    )
+
+
+@njit(cache=True)
+def _gcd(a, b):
+    while b:
+        a, b = b, a % b
+    return a
+
+
+@njit(cache=True)
+def spread_count(per_hit, samples):
+    """Rays one hit casts when a pixel's ``samples`` camera samples share one stratified set.
+
+    ``per_hit`` is the count wanted with a single camera sample; with more, the pixel's samples
+    split the work, so each pixel still gets at least ``per_hit`` (and at least ``samples``)
+    well-spread rays while a hit casts ceil(per_hit / samples).
+    """
+    return max(1, (per_hit + samples - 1) // samples)
+
+
+@njit(cache=True)
+def spread_stratum(i, n_hit, sample, samples, key, u1, u2):
+    """Point ``i`` of a hit's ``n_hit`` rays in the pixel-wide jittered grid of n_hit·samples cells.
+
+    Cells are dealt to the camera samples in an order scrambled by ``key`` (fixed per pixel and
+    purpose), so the light sample does not follow the sample's position in the pixel.
+    """
+    total = n_hit * samples
+    a = 1 + 2 * (key % total) if total > 1 else 1
+    while _gcd(a, total) != 1:
+        a += 1
+    index = ((sample * n_hit + i) * a + (key >> 8)) % total
+    return stratum(index, total, u1, u2)
+
+
+@njit(cache=True)
+def pixel_key(seed, pixel, purpose):
+    """A hash fixed for one pixel and one use (a light, the glossy lobe), shared by its samples."""
+    return pcg_hash((pcg_hash((seed ^ (purpose * 0x85EBCA6B)) & MASK32) ^ pixel) & MASK32)

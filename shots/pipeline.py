@@ -1,0 +1,82 @@
+"""One model, one preset: load, plan every frame, render and write the images.
+
+This is the linear table of contents of a render; the CLI and the batch runner call it.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+
+from shots.gltf import load_scene
+from shots.output import write_png
+from shots.planner import Frame, plan_frames
+from shots.presets import Preset, apply_model_fixes, load_preset
+from shots.render import prepare_scene, render_frame
+
+
+@dataclass(frozen=True)
+class RenderedFrame:
+    """A frame written to disk."""
+
+    frame: Frame
+    path: Path
+
+
+def safe_name(text: str) -> str:
+    """A file-name-safe version of a model, shot or variant name."""
+    cleaned = re.sub(r"[^A-Za-z0-9._-]+", "-", text).strip("-.")
+    return cleaned or "unnamed"
+
+
+def frame_file_name(model_stem: str, frame: Frame, frames_in_shot: int) -> str:
+    """``<model>-<shot>.png`` for a still, ``<model>-<shot>-<frame>.png`` in a sequence."""
+    base = f"{safe_name(model_stem)}-{safe_name(frame.shot)}"
+    return f"{base}.png" if frames_in_shot == 1 else f"{base}-{frame.index:03d}.png"
+
+
+def render_model(
+    model: Path,
+    out_dir: Path,
+    preset: Preset | str = "still",
+    *,
+    size: tuple[int, int] | None = None,
+    scene_choice: int | str | None = None,
+    variant: str | None = None,
+    on_frame: Callable[[RenderedFrame], None] | None = None,
+) -> list[RenderedFrame]:
+    """Render every frame of ``preset`` for ``model`` into ``out_dir`` as PNG files.
+
+    Parameters
+    ----------
+    model : a .gltf or .glb file.
+    preset : a Preset, a built-in preset name or a path to a TOML preset.
+    size : (width, height) overriding the preset's image size.
+    scene_choice : glTF scene index or name (default: the file's default scene, else the first).
+    variant : a KHR_materials_variants name to render instead of the default materials.
+    on_frame : called after each frame is written (progress reporting).
+    """
+    if not isinstance(preset, Preset):
+        preset = load_preset(preset)
+    if size is not None:
+        preset = preset.with_image_size(*size)
+    scene = apply_model_fixes(load_scene(model, scene=scene_choice), preset)
+    if variant is not None:
+        scene = scene.with_variant(variant)
+    frames = plan_frames(preset, scene)
+    prepared = prepare_scene(scene)
+    per_shot = {frame.shot: 0 for frame in frames}
+    for frame in frames:
+        per_shot[frame.shot] += 1
+    written = []
+    for frame in frames:
+        rgba = render_frame(prepared, frame.camera, frame.look)
+        path = out_dir / frame_file_name(Path(model).stem, frame, per_shot[frame.shot])
+        write_png(path, rgba, exposure=frame.look.exposure, tone_map=frame.look.tone_map)
+        result = RenderedFrame(frame, path)
+        written.append(result)
+        if on_frame is not None:
+            on_frame(result)
+    return written

@@ -1,0 +1,73 @@
+"""The colour pipeline against IEC 61966-2-1 (sRGB) and the Khronos PBR Neutral reference values."""
+
+import io
+
+import numpy as np
+import png
+from PIL import Image
+
+from shots.colour import linear_to_srgb, pbr_neutral, quantize, srgb_to_linear, to_display
+from shots.output import png_bytes, write_png
+
+
+def test_srgb_reference_values():
+    # IEC 61966-2-1 transfer functions; values recomputed in the research checklist (C2).
+    assert np.isclose(srgb_to_linear(0.5), 0.21404, atol=1e-5)
+    assert np.isclose(srgb_to_linear(128 / 255), 0.21586, atol=1e-5)
+    assert np.isclose(linear_to_srgb(0.18), 0.46136, atol=1e-5)
+    assert round(float(linear_to_srgb(0.18)) * 255) == 118
+    assert round(float(linear_to_srgb(0.5)) * 255) == 188
+    # The linear segment: IEC 61966-2-1 slope 12.92 below 0.0031308.
+    assert np.isclose(linear_to_srgb(0.001), 0.01292)
+
+
+def test_srgb_round_trip_is_exact_for_8_bit_codes():
+    # IEC 61966-2-1: decode then encode must return every 8-bit code.
+    codes = np.arange(256)
+    back = quantize(linear_to_srgb(srgb_to_linear(codes / 255.0)))
+    assert np.array_equal(back, codes)
+
+
+def test_pbr_neutral_reference_values():
+    # Khronos PBR Neutral (KhronosGroup/ToneMapping, 2024): grey inputs, values from the checklist C4.
+    for x, expected in [(0.18, 0.14), (0.5, 0.46), (1.0, 0.86909)]:
+        out = pbr_neutral(np.array([x, x, x]))
+        assert np.allclose(out, expected, atol=1e-4), (x, out)
+
+
+def test_pbr_neutral_keeps_saturated_midtones():
+    # Below the 0.76 peak the operator only subtracts the toe offset (≤ 0.04) from every channel.
+    color = np.array([0.6, 0.3, 0.1])
+    assert np.allclose(pbr_neutral(color), color - 0.04)
+
+
+def test_half_covered_white_edge_has_no_dark_fringe():
+    # Straight alpha in PNG (PNG spec §12.8; checklist C6): premultiplied (0.5,0.5,0.5,0.5) is
+    # white at half coverage and must be written as (255, 255, 255, 128), not grey 188.
+    premultiplied = np.array([[[0.5, 0.5, 0.5, 0.5]]], np.float32)
+    codes = quantize(to_display(premultiplied, tone_map="none"))
+    assert codes.tolist() == [[[255, 255, 255, 128]]]
+
+
+def test_exposure_is_in_stops():
+    one = np.array([[[0.1, 0.1, 0.1, 1.0]]], np.float32)
+    up = to_display(one, exposure=1.0, tone_map="none")
+    assert np.isclose(up[0, 0, 0], linear_to_srgb(0.2))
+
+
+def test_png_round_trip_8_and_16_bit(tmp_path):
+    rng = np.random.default_rng(1)
+    display = rng.random((6, 5, 4))
+    image8 = np.asarray(Image.open(io.BytesIO(png_bytes(display, 8))))
+    assert image8.shape == (6, 5, 4) and image8.dtype == np.uint8
+    assert np.array_equal(image8, quantize(display, 8))
+    width, height, rows, info = png.Reader(bytes=png_bytes(display, 16)).read()
+    image16 = np.vstack(list(rows)).reshape(height, width, 4)
+    assert info["bitdepth"] == 16 and info["alpha"]
+    assert np.array_equal(image16, quantize(display, 16))
+
+
+def test_write_png_leaves_no_temporary_file(tmp_path):
+    target = tmp_path / "sub" / "frame.png"
+    write_png(target, np.zeros((3, 3, 4), np.float32))
+    assert [p.name for p in target.parent.iterdir()] == ["frame.png"]
