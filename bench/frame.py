@@ -30,7 +30,7 @@ from shots.planner import plan_frames
 from shots.presets import apply_model_fixes, load_preset
 from shots.render import (
     MIN_CONTACT_SAMPLES,
-    pack_camera,
+    pack_frame,
     pack_ground,
     prepare_scene,
     render_frame,
@@ -84,7 +84,7 @@ def load_model(path: str | None):
 
 
 @njit(parallel=True, cache=True)
-def camera_samples(cam, width, height, spp, seed):
+def camera_samples(frame, width, height, spp, seed):
     """Every camera sample's ray, exactly as the renderer places them: (n, 3) float32 each."""
     n = width * height * spp
     origins = np.empty((n, 3), np.float32)
@@ -94,7 +94,7 @@ def camera_samples(cam, width, height, spp, seed):
             pixel = j * width + i
             for s in range(spp):
                 fx, fy = shade.sample_offset(spp, s, seed, pixel)
-                ox, oy, oz, dx, dy, dz = shade.camera_ray(cam, width, height, i + fx, j + fy)
+                ox, oy, oz, dx, dy, dz = shade.camera_ray(frame, i + fx, j + fy)
                 k = pixel * spp + s
                 origins[k, 0], origins[k, 1], origins[k, 2] = ox, oy, oz
                 directions[k, 0], directions[k, 1], directions[k, 2] = dx, dy, dz
@@ -150,7 +150,8 @@ def shadow_rays(points, normals, look, spp, contact, rng):
 def time_rays(prepared, camera, look):
     """Seconds spent in BVH queries for the frame's primary and first-hit shadow rays."""
     spp = max(look.samples, 1)
-    origins, directions = camera_samples(pack_camera(camera), camera.width, camera.height, spp,
+    frame = pack_frame(camera, look, prepared.see_through, np.zeros((9, 3)))
+    origins, directions = camera_samples(frame, camera.width, camera.height, spp,
                                          int(look.seed) & 0xFFFFFFFF)  # fmt: skip
     ground = pack_ground(look.ground, prepared.bounds, camera)
     catcher = look.ground.kind == "shadow_catcher"
@@ -159,9 +160,9 @@ def time_rays(prepared, camera, look):
     seconds, primary, shadow = 0.0, 0, 0
     for lo in range(0, len(origins), CHUNK):
         o, d = origins[lo : lo + CHUNK], directions[lo : lo + CHUNK]
-        t0 = time.perf_counter()
+        t0 = time.process_time()
         t, tri, u, v = intersect_closest(prepared.bvh, o, d)
-        seconds += time.perf_counter() - t0
+        seconds += time.process_time() - t0
         primary += len(o)
         t_floor = np.where(d[:, 1] < 0, (floor_y - o[:, 1]) / np.where(d[:, 1] < 0, d[:, 1], -1), np.inf)
         on_floor = (t_floor < t) if look.ground.kind != "none" else np.zeros(len(o), bool)
@@ -182,9 +183,9 @@ def time_rays(prepared, camera, look):
         so, sd, st = shadow_rays(points, normals, look, spp, contact, rng)
         if len(so) == 0:
             continue
-        t0 = time.perf_counter()
+        t0 = time.process_time()
         intersect_any(prepared.bvh, so, sd, 0.0, st)
-        seconds += time.perf_counter() - t0
+        seconds += time.process_time() - t0
         shadow += len(so)
     return seconds, primary, shadow
 
@@ -200,9 +201,9 @@ def main() -> None:
     preset = load_preset(args.preset).with_image_size(args.size, args.size)
     scene = apply_model_fixes(scene, preset)
     frame = plan_frames(preset, scene)[0]
-    t0 = time.perf_counter()
+    t0 = time.process_time()
     prepared = prepare_scene(scene)
-    prepare_seconds = time.perf_counter() - t0
+    prepare_seconds = time.process_time() - t0
 
     # compile (or load from cache) every kernel on a tiny frame of the same look
     from dataclasses import replace
@@ -211,9 +212,9 @@ def main() -> None:
     render_frame(prepared, small, frame.look)
     time_rays(prepared, small, frame.look)
 
-    t0 = time.perf_counter()
+    t0 = time.process_time()
     render_frame(prepared, frame.camera, frame.look)
-    frame_seconds = time.perf_counter() - t0
+    frame_seconds = time.process_time() - t0
     ray_seconds, primary, shadow = time_rays(prepared, frame.camera, frame.look)
     look = frame.look
     overhead = frame_seconds / ray_seconds

@@ -24,8 +24,10 @@ class Bvh(NamedTuple):
 
     Attributes
     ----------
-    node_bounds : (m, 6, 4) float32, child boxes: rows min x, max x, min y, max y, min z, max z.
-    node_links : (m, 4) int32, child node index (>= 0) or encoded leaf range (< 0).
+    node_bounds : (m, 8, 4) float32 node records, 128-byte aligned: rows 0–5 are the child boxes
+        (min x, max x, min y, max y, min z, max z; one column per child), row 6 holds the links.
+    node_links : (m, 4) int32 view of row 6 of the same memory: child node index (>= 0) or
+        encoded leaf range (< 0).
     tri_verts : (n, 9) float32, vertices p0, p1, p2 of each triangle in leaf order.
     tri_ids : (n,) int32, original triangle index of each leaf-order triangle.
     """
@@ -86,9 +88,34 @@ def build_bvh(
     order, node_box, node_left, node_start, node_count = bvh_build.build_binary(
         prims, int(bins), float(cost_traversal), float(cost_intersect), int(max_leaf)
     )
-    node_bounds, node_links = bvh_build.collapse_wide(node_box, node_left, node_start, node_count)
+    bounds, links = bvh_build.collapse_wide(
+        node_box, node_left, node_start, node_count, float(cost_traversal), float(cost_intersect),
+        int(max_leaf),
+    )  # fmt: skip
+    node_bounds, node_links = _node_records(bounds, links)
     tri_verts = bvh_build.gather_vertices(positions, triangles, order)
     return Bvh(node_bounds, node_links, tri_verts, ids[order])
+
+
+def _aligned_empty(shape, dtype, align=128) -> np.ndarray:
+    """An empty C-contiguous array whose first byte sits on an ``align``-byte boundary."""
+    nbytes = int(np.prod(shape)) * np.dtype(dtype).itemsize
+    raw = np.empty(nbytes + align, np.uint8)
+    start = (-raw.ctypes.data) % align
+    return raw[start : start + nbytes].view(dtype).reshape(shape)
+
+
+def _node_records(bounds: np.ndarray, links: np.ndarray):
+    """Pack each node into one 128-byte record (two cache lines): six rows of child bounds, one
+    row of child links (stored as int32 bits) and one of padding. Returns the float32 records and
+    an int32 view of their link row."""
+    m = len(bounds)
+    records = _aligned_empty((m, 8, bvh_build.WIDTH), np.float32)
+    records[:, :6] = bounds
+    as_int = records.view(np.int32)
+    as_int[:, 6] = links
+    as_int[:, 7] = 0
+    return records, as_int[:, 6]
 
 
 def sah_cost(bvh: Bvh, cost_traversal: float = 1.0, cost_intersect: float = 1.0) -> float:
@@ -99,8 +126,9 @@ def sah_cost(bvh: Bvh, cost_traversal: float = 1.0, cost_intersect: float = 1.0)
 
 
 def traversal_bytes(bvh: Bvh) -> int:
-    """Bytes of all arrays traversal reads (nodes, triangle vertices, triangle ids)."""
-    return sum(a.nbytes for a in bvh)
+    """Bytes of all arrays traversal reads: node records (links included), triangle vertices and
+    triangle ids."""
+    return bvh.node_bounds.nbytes + bvh.tri_verts.nbytes + bvh.tri_ids.nbytes
 
 
 def _kernel_array(a) -> np.ndarray:

@@ -16,6 +16,7 @@ import typer
 from rich.console import Console
 from rich.table import Table
 
+from shots.batch.cli_command import batch
 from shots.errors import ShotsError
 
 app = typer.Typer(
@@ -137,23 +138,71 @@ def plan(
 @app.command()
 def demo(
     output: Annotated[Path, typer.Option("--output", "-o", help="Output folder.")] = Path("renders"),
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bars.")] = False,
 ) -> None:
-    """Render the invented demo catalog's thumbnails with the shipped presets."""
-    from shots.demo import demo_models
-    from shots.pipeline import render_model
+    """Render the invented demo catalog: thumbnails, hero views, a turntable, a report."""
+    from shots.batch.progress import print_summary
+    from shots.demo import run_demo
 
-    models = demo_models()
     try:
-        for model in models:
-            for rendered in render_model(model, output, "thumbnail"):
-                out.print(f"wrote {rendered.path}", highlight=False)
+        summaries = run_demo(output, quiet=quiet, console=err)
     except ShotsError as exc:
         fail(str(exc))
-    out.print(f"{len(models)} demo models rendered into {output}", highlight=False)
+    for summary in summaries:
+        if not quiet:
+            print_summary(summary, err)
+    out.print(f"demo renders in {output}/ (contact sheet: {output}/thumbnails/contact_sheet.png,"
+              f" report: {output}/thumbnails/report.md)", highlight=False)
+    raise typer.Exit(max(summary.exit_code for summary in summaries))
+
+
+@app.command()
+def check(
+    renders: Annotated[Path, typer.Argument(help="A folder of renders (searched recursively).")],
+    shot: Annotated[
+        str | None,
+        typer.Option("--shot", help="Only images whose path names this shot, e.g. thumbnail."),
+    ] = None,
+) -> None:
+    """Measure every thumbnail's fill, centring, background and exposure; flag the odd ones."""
+    from shots.check import check_renders
+
+    try:
+        images = thumbnails_in(renders, shot)
+        if not images:
+            fail(f"{renders}: no rendered images found" + (f" for shot {shot!r}" if shot else ""))
+        report = check_renders(images)
+    except ShotsError as exc:
+        fail(str(exc))
+    for image, reasons in report.flagged:
+        out.print(f"[yellow]flagged[/] {image}: {'; '.join(reasons)}", highlight=False)
+    out.print(f"{len(report.flagged)} of {len(report.images)} image(s) flagged; "
+              f"report in {report.markdown_path}", highlight=False)
+    raise typer.Exit(1 if report.flagged else 0)
+
+
+def thumbnails_in(folder: Path, shot: str | None) -> list[Path]:
+    """Rendered PNG files under ``folder`` (not the batch's own contact sheet), optionally only
+    those with ``shot`` as a path component or name prefix."""
+    from shots.batch.layout import RESERVED
+
+    if folder.is_file():
+        return [folder]
+    found = [
+        p for p in sorted(folder.rglob("*.png"))
+        if p.relative_to(folder).as_posix() not in RESERVED
+        and not any(part.startswith(".") for part in p.relative_to(folder).parts)
+    ]
+    if shot is None:
+        return found
+    return [p for p in found if shot in p.relative_to(folder).parts or p.stem.startswith(shot)]
 
 
 def fmt3(values) -> str:
     return "(" + ", ".join(f"{v:.3f}" for v in values) + ")"
+
+
+app.command()(batch)
 
 
 def main() -> None:

@@ -27,16 +27,23 @@ from shots.colour import srgb_to_linear
 from shots.environment import environment_map
 from shots.errors import RenderError
 from shots.kernels import ground as gk
+from shots.kernels import layout, shade
 from shots.kernels import lights as lk
-from shots.kernels import shade
 from shots.look import AREA, DIRECTIONAL, POINT, SPOT, Environment, Ground, Light, Look
-from shots.scene import ALPHA_OPAQUE, N_TEX_INFO, P_ALPHA_MODE, P_TRANSMISSION, Scene
+from shots.scene import (
+    ALPHA_OPAQUE,
+    N_SLOTS,
+    N_TEX_INFO,
+    P_ALPHA_MODE,
+    P_TRANSMISSION,
+    Scene,
+)
 
 BACKGROUNDS = {
-    "transparent": shade.BG_TRANSPARENT,
-    "solid": shade.BG_SOLID,
-    "gradient": shade.BG_GRADIENT,
-    "environment": shade.BG_ENVIRONMENT,
+    "transparent": layout.BG_TRANSPARENT,
+    "solid": layout.BG_SOLID,
+    "gradient": layout.BG_GRADIENT,
+    "environment": layout.BG_ENVIRONMENT,
 }
 GROUNDS = {
     "none": gk.GROUND_NONE,
@@ -61,8 +68,7 @@ class PreparedScene:
     ----------
     scene : the source scene.
     bvh : its BVH (``shots.accel``).
-    geometry : (positions, normals, tangents, uvs, colors, triangles, tri_material), kernel dtypes.
-    materials : (params, texture, texcoord, uv_transform, texels, tex_info), kernel dtypes.
+    packed : (verts, faces, materials, texels, tex_info), the layout of ``shots.kernels.layout``.
     see_through : whether any used material lets light through (BLEND, MASK, transmission);
         when not, shadow rays take the cheaper any-hit query.
     bounds : (2, 3) float64 scene bounds.
@@ -70,14 +76,42 @@ class PreparedScene:
 
     scene: Scene
     bvh: Bvh
-    geometry: tuple
-    materials: tuple
+    packed: tuple
     see_through: bool
     bounds: np.ndarray
 
 
-def _c(array, dtype) -> np.ndarray:
-    return np.ascontiguousarray(array, dtype)
+def pack_scene(scene: Scene) -> tuple:
+    """The scene's arrays in the tracer's packed layout (``shots.kernels.layout``).
+
+    Returns
+    -------
+    verts : (v, N_VERT) float32; faces : (n, 4) int32; materials : (m, N_MAT) float32;
+    texels : (k, 4) float32; tex_info : (t, N_TEX_INFO) int32.
+    """
+    v = len(scene.positions)
+    verts = np.zeros((v, layout.N_VERT), np.float32)
+    verts[:, layout.V_P : layout.V_P + 3] = scene.positions
+    verts[:, layout.V_N : layout.V_N + 3] = scene.normals
+    verts[:, layout.V_T : layout.V_T + 4] = np.asarray(scene.tangents).reshape(v, 4)
+    uv = np.asarray(scene.uv, np.float32).reshape(2, v, 2)
+    verts[:, layout.V_UV0 : layout.V_UV0 + 2] = uv[0]
+    verts[:, layout.V_UV1 : layout.V_UV1 + 2] = uv[1]
+    verts[:, layout.V_C : layout.V_C + 4] = np.asarray(scene.colors).reshape(v, 4)
+    faces = np.empty((scene.triangle_count, 4), np.int32)
+    faces[:, :3] = scene.triangles
+    faces[:, 3] = scene.tri_material
+    table = scene.materials
+    m = len(table.params)
+    materials = np.zeros((m, layout.N_MAT), np.float32)
+    materials[:, : layout.M_SLOTS] = table.params
+    slots = materials[:, layout.M_SLOTS :].reshape(m, N_SLOTS, layout.SLOT_WIDTH)
+    slots[:, :, layout.SLOT_TEX] = table.texture
+    slots[:, :, layout.SLOT_SET] = table.texcoord
+    slots[:, :, layout.SLOT_A :] = np.asarray(table.uv_transform).reshape(m, N_SLOTS, 6)
+    texels = np.ascontiguousarray(scene.textures.texels, np.float32).reshape(-1, 4)
+    tex_info = np.ascontiguousarray(scene.textures.info, np.int32).reshape(-1, N_TEX_INFO)
+    return verts, faces, materials, texels, tex_info
 
 
 def prepare_scene(scene: Scene) -> PreparedScene:
@@ -90,36 +124,14 @@ def prepare_scene(scene: Scene) -> PreparedScene:
     """
     if scene.triangle_count == 0:
         raise RenderError(scene.source or "<scene>", None, "the scene has no triangles to render")
-    positions = _c(scene.positions, np.float32)
-    triangles = _c(scene.triangles, np.int32)
-    v = len(positions)
-    geometry = (
-        positions,
-        _c(scene.normals, np.float32).reshape(v, 3),
-        _c(scene.tangents, np.float32).reshape(v, 4),
-        _c(scene.uv, np.float32).reshape(2, v, 2),
-        _c(scene.colors, np.float32).reshape(v, 4),
-        triangles,
-        _c(scene.tri_material, np.int32),
-    )
-    table = scene.materials
-    materials = (
-        _c(table.params, np.float32),
-        _c(table.texture, np.int32),
-        _c(table.texcoord, np.int32),
-        _c(table.uv_transform, np.float32),
-        _c(scene.textures.texels, np.float32).reshape(-1, 4),
-        _c(scene.textures.info, np.int32).reshape(-1, N_TEX_INFO),
-    )
-    used = table.params[np.unique(scene.tri_material)]
+    used = scene.materials.params[np.unique(scene.tri_material)]
     see_through = bool(
         np.any(used[:, P_ALPHA_MODE] != ALPHA_OPAQUE) or np.any(used[:, P_TRANSMISSION] > 0)
     )
     return PreparedScene(
         scene=scene,
-        bvh=build_bvh(positions, triangles),
-        geometry=geometry,
-        materials=materials,
+        bvh=build_bvh(scene.positions, scene.triangles),
+        packed=pack_scene(scene),
         see_through=see_through,
         bounds=scene.bounds(),
     )
@@ -151,21 +163,6 @@ def pack_lights(lights: tuple[Light, ...]) -> np.ndarray:
     return table
 
 
-def pack_camera(camera: Camera) -> np.ndarray:
-    """(N_CAMERA,) float64: eye, basis rows u, v, w, tan(yfov/2), aspect, orthographic, ymag."""
-    row = np.zeros(shade.N_CAMERA, np.float64)
-    row[shade.CAM_EYE : shade.CAM_EYE + 3] = camera.eye
-    basis = camera.basis()
-    row[shade.CAM_U : shade.CAM_U + 3] = basis[0]
-    row[shade.CAM_V : shade.CAM_V + 3] = basis[1]
-    row[shade.CAM_W : shade.CAM_W + 3] = basis[2]
-    row[shade.CAM_TAN_Y] = math.tan(camera.yfov / 2.0)
-    row[shade.CAM_ASPECT] = camera.aspect
-    row[shade.CAM_ORTHO] = 1.0 if camera.kind == ORTHOGRAPHIC else 0.0
-    row[shade.CAM_YMAG] = camera.ymag
-    return row
-
-
 def pack_ground(ground: Ground, bounds: np.ndarray, camera: Camera) -> np.ndarray:
     """(N_GROUND,) float64 floor row; the sweep's wall stands behind the target as seen from
     the camera. Ground colours are linear albedo, like a material's base colour factor."""
@@ -188,35 +185,48 @@ def pack_ground(ground: Ground, bounds: np.ndarray, camera: Camera) -> np.ndarra
     return row
 
 
-def pack_background(look: Look) -> np.ndarray:
+@functools.lru_cache(maxsize=8)
+def _environment(env: Environment) -> tuple[np.ndarray, np.ndarray]:
+    return environment_map(env)
+
+
+def background_colours(look: Look) -> np.ndarray:
     """(2, 3) float64 linear top and bottom colours (Background colours are display sRGB)."""
     bg = look.background
     if bg.kind not in BACKGROUNDS:
         raise RenderError("<look>", "background.kind", f"unknown {bg.kind!r}")
     top = srgb_to_linear(np.asarray(bg.color, np.float64))
     bottom = srgb_to_linear(np.asarray(bg.color_bottom, np.float64)) if bg.kind == "gradient" else top
-    return np.ascontiguousarray(np.stack([top, bottom]), np.float64)
+    return np.stack([top, bottom])
 
 
-@functools.lru_cache(maxsize=8)
-def _environment(env: Environment) -> tuple:
-    radiance, coeffs = environment_map(env)
-    return radiance, np.ascontiguousarray(coeffs, np.float64), np.array([env.rotation], np.float64)
-
-
-def pack_settings(camera: Camera, look: Look, see_through: bool) -> np.ndarray:
-    """(N_SETTINGS,) int64 image size, sample counts, depth, seed and flags."""
-    row = np.zeros(shade.N_SETTINGS, np.int64)
-    row[shade.C_WIDTH] = camera.width
-    row[shade.C_HEIGHT] = camera.height
-    row[shade.C_SAMPLES] = max(int(look.samples), 1)
-    row[shade.C_AREA_SAMPLES] = max(int(look.area_light_samples), 1)
-    row[shade.C_GLOSSY_SAMPLES] = max(int(look.glossy_samples), 1)
-    row[shade.C_MAX_DEPTH] = max(int(look.max_depth), 0)
-    row[shade.C_SEED] = int(look.seed) & 0xFFFFFFFF
-    row[shade.C_SEE_THROUGH] = 1 if see_through else 0
-    row[shade.C_BACKGROUND] = BACKGROUNDS[look.background.kind]
-    row[shade.C_CONTACT_SAMPLES] = max(int(look.area_light_samples), MIN_CONTACT_SAMPLES)
+def pack_frame(camera: Camera, look: Look, see_through: bool, sh: np.ndarray) -> np.ndarray:
+    """(N_FRAME,) float64: camera, image and sampling settings, background, SH irradiance."""
+    row = np.zeros(layout.N_FRAME, np.float64)
+    row[layout.F_EYE : layout.F_EYE + 3] = camera.eye
+    basis = camera.basis()
+    row[layout.F_U : layout.F_U + 3] = basis[0]
+    row[layout.F_V : layout.F_V + 3] = basis[1]
+    row[layout.F_W : layout.F_W + 3] = basis[2]
+    row[layout.F_TAN_Y] = math.tan(camera.yfov / 2.0)
+    row[layout.F_ASPECT] = camera.aspect
+    row[layout.F_ORTHO] = 1.0 if camera.kind == ORTHOGRAPHIC else 0.0
+    row[layout.F_YMAG] = camera.ymag
+    row[layout.F_WIDTH] = camera.width
+    row[layout.F_HEIGHT] = camera.height
+    row[layout.F_SAMPLES] = max(int(look.samples), 1)
+    row[layout.F_AREA_SAMPLES] = max(int(look.area_light_samples), 1)
+    row[layout.F_GLOSSY_SAMPLES] = max(int(look.glossy_samples), 1)
+    row[layout.F_MAX_DEPTH] = max(int(look.max_depth), 0)
+    row[layout.F_SEED] = int(look.seed) & 0xFFFFFFFF
+    row[layout.F_SEE_THROUGH] = 1.0 if see_through else 0.0
+    row[layout.F_BACKGROUND] = BACKGROUNDS[look.background.kind]
+    row[layout.F_CONTACT_SAMPLES] = max(int(look.area_light_samples), MIN_CONTACT_SAMPLES)
+    colours = background_colours(look)
+    row[layout.F_BG_TOP : layout.F_BG_TOP + 3] = colours[0]
+    row[layout.F_BG_BOTTOM : layout.F_BG_BOTTOM + 3] = colours[1]
+    row[layout.F_SH : layout.F_SH + 27] = np.asarray(sh, np.float64).ravel()
+    row[layout.F_ENV_ROTATION] = look.environment.rotation
     return row
 
 
@@ -237,17 +247,14 @@ def render_frame(prepared: PreparedScene, camera: Camera, look: Look) -> np.ndar
     if camera.width < 1 or camera.height < 1:
         raise RenderError("<camera>", "size", f"bad image size {camera.width}x{camera.height}")
     out = np.zeros((camera.height, camera.width, 4), np.float32)
-    background = pack_background(look)
+    radiance, sh = _environment(look.environment)
     shade.render_image(
         out,
-        pack_camera(camera),
-        pack_settings(camera, look, prepared.see_through),
-        background,
+        pack_frame(camera, look, prepared.see_through, sh),
         pack_lights(look.lights),
-        _environment(look.environment),
-        tuple(prepared.bvh),
-        prepared.geometry,
-        prepared.materials,
+        radiance,
         pack_ground(look.ground, prepared.bounds, camera),
+        tuple(prepared.bvh),
+        prepared.packed,
     )
     return out

@@ -21,7 +21,7 @@ from shots.errors import RenderError
 from shots.kernels.shade import camera_ray
 from shots.kernels.texture import equirect_uv, sample_equirect
 from shots.look import Background, Environment, Light
-from shots.render import pack_camera, prepare_scene, render_frame
+from shots.render import pack_frame, prepare_scene, render_frame
 from shots.scene import MaterialTable, Scene
 
 LIGHT = Light("area", intensity=3.0, position=(1, 2, 2), direction=(-1, -2, -2),
@@ -88,12 +88,12 @@ def test_kernel_camera_rays_match_camera_module():
         Camera(eye=(1, 5, 1), target=(0, 0, 0), up=(0, 1, 0), width=16, height=24,
                kind=ORTHOGRAPHIC, ymag=0.7),
     ]:  # fmt: skip
-        row = pack_camera(camera)
+        row = pack_frame(camera, look(), False, np.zeros((9, 3)))
         px = np.array([0.5, 7.25, 15.5, 3.0])
         py = np.array([0.5, 11.0, 19.5, 2.75])
         origins, directions = camera.rays_at(px, py)
         for k in range(len(px)):
-            ray = camera_ray(row, camera.width, camera.height, px[k], py[k])
+            ray = camera_ray(row, px[k], py[k])
             np.testing.assert_allclose(ray[:3], origins[k], atol=1e-5)
             np.testing.assert_allclose(ray[3:], directions[k], atol=1e-6)
 

@@ -76,7 +76,6 @@ def report_json(report: CheckReport) -> str:
     """The report as a JSON document (numbers that do not exist are null)."""
     document = {
         "version": REPORT_VERSION,
-        "folder": str(report.folder),
         "images_checked": len(report.images),
         "images_flagged": sum(image.flagged for image in report.images),
         "tolerances": asdict(report.tolerances),

@@ -27,6 +27,12 @@ from shots.output import atomic_write_bytes
 Source = str | os.PathLike | Iterable[str | os.PathLike]
 
 
+def write_if_changed(path: Path, data: bytes) -> None:
+    """Atomically write ``data`` unless the file already holds it (a rerun touches nothing)."""
+    if not (path.is_file() and path.read_bytes() == data):
+        atomic_write_bytes(path, data)
+
+
 def check_renders(
     out_dir: Source,
     tolerances: Tolerances | Mapping[str, object] | None = None,
@@ -62,8 +68,8 @@ def check_renders(
     folder = Path(report_dir) if report_dir is not None else default_report_folder(sources)
     report = judge_images(images, folder, tolerances)
     markdown_path, json_path = folder / "report.md", folder / "report.json"
-    atomic_write_bytes(markdown_path, report_markdown(report).encode("utf-8"))
-    atomic_write_bytes(json_path, report_json(report).encode("utf-8"))
+    write_if_changed(markdown_path, report_markdown(report).encode("utf-8"))
+    write_if_changed(json_path, report_json(report).encode("utf-8"))
     return CheckReport(
         folder=report.folder,
         images=report.images,

@@ -14,13 +14,13 @@ INV_PI = 1.0 / math.pi
 ALPHA_MIN = 1e-3  # α = 0 makes D a delta (spec App. B notes the singularity); clamp it
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def alpha_of(roughness):
     """α = roughness², clamped away from the singular mirror case."""
     return max(roughness * roughness, ALPHA_MIN)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def ggx_d(n_dot_h, alpha):
     """Trowbridge–Reitz (GGX) distribution D(h) (spec App. B, "Specular BRDF")."""
     if n_dot_h <= 0.0:
@@ -30,7 +30,7 @@ def ggx_d(n_dot_h, alpha):
     return a2 * INV_PI / (f * f)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def smith_vis(n_dot_l, n_dot_v, alpha):
     """Height-correlated Smith visibility V = G2 / (4 |N·L| |N·V|) (spec App. B)."""
     a2 = alpha * alpha
@@ -44,7 +44,7 @@ def smith_vis(n_dot_l, n_dot_v, alpha):
     return 0.5 / s
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def smith_g1(n_dot_w, alpha):
     """Smith masking G1 for GGX (Heitz 2014, "Understanding the Masking-Shadowing Function")."""
     c = abs(n_dot_w)
@@ -52,7 +52,7 @@ def smith_g1(n_dot_w, alpha):
     return 2.0 * c / (c + math.sqrt(a2 + (1.0 - a2) * c * c))
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def schlick_weight(v_dot_h):
     """(1 − |V·H|)⁵, the Schlick (1994) Fresnel weight."""
     m = 1.0 - abs(v_dot_h)
@@ -62,14 +62,14 @@ def schlick_weight(v_dot_h):
     return m2 * m2 * m
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def f0_from_ior(ior):
     """Normal-incidence reflectance ((n − 1)/(n + 1))² (spec App. B; KHR_materials_ior)."""
     r = (ior - 1.0) / (ior + 1.0)
     return r * r
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def fresnel_dielectric(cos_i, eta):
     """Exact unpolarised Fresnel reflectance for relative index ``eta`` = n_t / n_i.
 
@@ -85,7 +85,7 @@ def fresnel_dielectric(cos_i, eta):
     return 0.5 * (rs * rs + rp * rp)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def brdf_channel(base, metallic, f0, f90, diffuse_weight, d_vis, fw):
     """One colour channel of the glTF BRDF value f (without the cosine).
 
@@ -112,13 +112,13 @@ def brdf_channel(base, metallic, f0, f90, diffuse_weight, d_vis, fw):
     return (1.0 - metallic) * dielectric + metallic * metal
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def specular_lobe(n_dot_l, n_dot_v, n_dot_h, alpha):
     """D·Vis for the given cosines (spec App. B)."""
     return ggx_d(n_dot_h, alpha) * smith_vis(n_dot_l, n_dot_v, alpha)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def sample_ggx_vndf(vx, vy, vz, alpha, u1, u2):
     """A microfacet normal drawn from the GGX distribution of visible normals.
 
@@ -166,7 +166,7 @@ def sample_ggx_vndf(vx, vy, vz, alpha, u1, u2):
     return hx * inv, hy * inv, hz * inv
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def refract(vx, vy, vz, nx, ny, nz, eta):
     """Snell refraction of the unit view vector v (pointing away from the surface).
 

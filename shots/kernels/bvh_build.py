@@ -1,20 +1,26 @@
 """Binned-SAH BVH build (Wald 2007) and its flattening into 4-wide nodes.
 
-Build: top-down over an index list. At each node the triangle centroids are sorted into ``bins``
-equal bins per axis; every plane between bins is scored with the surface area heuristic
-(Goldsmith & Salmon 1987; MacDonald & Booth 1990)
+Build: top-down over triangle records (box, centre), reordered in place. At each node the centres
+are sorted into ``bins`` equal bins per axis; every plane between bins is scored with the surface
+area heuristic (Goldsmith & Salmon 1987; MacDonald & Booth 1990)
 
     C = c_trav + c_isect · (A_L·N_L + A_R·N_R) / A
 
-and the node becomes a leaf when C_leaf = c_isect · N is no worse (and N <= max_leaf). Counts and
-min/max bounds are exact, so the tree does not depend on the order of evaluation.
+and the node becomes a leaf when C_leaf = c_isect · N is no worse (and N <= max_leaf). Nodes with
+more than PAR_MIN triangles are split first, binning in parallel; the subtrees below them are then
+built in parallel. Counts and min/max are exact and the schedule depends only on triangle counts,
+so the tree is the same for any number of threads.
 
-Flat layout (what traversal reads), WIDTH = 4 children per node:
-    node_bounds : (m, 6, WIDTH) float32, rows min x, max x, min y, max y, min z, max z, one column
-        per child (structure of arrays, so the four slab tests run side by side). Empty slots have
+Collapse: the binary tree becomes a 4-wide one by repeatedly opening the child with the largest
+surface area. A would-be wide node holding only two leaves becomes a single leaf when SAH with
+the cost of a whole wide node favours it (``merges_into_leaf``), which saves memory.
+
+Flat layout (what traversal reads; ``shots.accel`` packs it into 128-byte node records):
+    bounds : (m, 6, WIDTH) float32, rows min x, max x, min y, max y, min z, max z, one column per
+        child (structure of arrays, so the four slab tests run side by side). Empty slots have
         min = +inf, max = -inf and are never entered.
-    node_links : (m, WIDTH) int32. >= 0: index of an inner node. < 0: a leaf, ~link = start << 4 |
-        count (triangles start .. start+count-1 of the leaf-ordered arrays); count 0 = empty slot.
+    links : (m, WIDTH) int32. >= 0: index of an inner node. < 0: a leaf, ~link = start << 4 |
+        count (triangles start .. start+count-1 of the leaf-ordered arrays); -1 = empty slot.
 Node 0 is the root; nodes are in depth-first order.
 """
 
@@ -111,10 +117,11 @@ def bin_prims(prims, start, end, cbox, scale, bins, counts, boxes):
 
 
 @njit(cache=True)
-def clear_bins(counts, boxes):
-    counts[:] = 0
-    boxes[..., :3] = np.inf
-    boxes[..., 3:] = -np.inf
+def clear_bins(counts, boxes, bins):
+    for a in range(3):
+        for b in range(bins):
+            counts[a, b] = 0
+            empty_box(boxes[a, b])
 
 
 @njit(cache=True, parallel=True)
@@ -125,7 +132,7 @@ def bin_prims_parallel(prims, start, end, cbox, scale, bins, counts, boxes):
     part_boxes = np.empty((PAR_CHUNKS, 3, bins, 6), np.float32)
     size = (end - start + PAR_CHUNKS - 1) // PAR_CHUNKS
     for c in prange(PAR_CHUNKS):
-        clear_bins(part_counts[c], part_boxes[c])
+        clear_bins(part_counts[c], part_boxes[c], bins)
         lo = start + c * size
         bin_prims(prims, lo, min(end, lo + size), cbox, scale, bins, part_counts[c],
                   part_boxes[c])  # fmt: skip
@@ -232,9 +239,10 @@ def split_node(prims, order, start, end, depth, box, cbox, bins, c_trav, c_isect
     if count <= 1:
         return -1
     if depth < SAH_MAX_DEPTH:
+        bins = min(bins, count)  # more bins than triangles only costs time
         bin_scales(cbox, bins, scale)
         if scale[0] + scale[1] + scale[2] > 0.0:
-            clear_bins(counts, bin_boxes)
+            clear_bins(counts, bin_boxes, bins)
             if parallel_bins:
                 bin_prims_parallel(prims, start, end, cbox, scale, bins, counts, bin_boxes)
             else:
@@ -386,9 +394,32 @@ def leaf_link(start, count):
 
 
 @njit(cache=True)
-def collapse_wide(node_box, node_left, node_start, node_count):
+def merges_into_leaf(node_box, node_left, node_count, c, c_trav, c_isect, max_leaf):
+    """Whether binary node ``c``, whose children are both leaves, should rather be one leaf.
+
+    Kept apart, the two leaves would need a wide node of their own with two of its WIDTH slots
+    used; it costs a whole wide-node visit, about two binary levels (2·c_trav), which the binary
+    SAH did not charge. Merging needs no new slot: the two leaf ranges are adjacent."""
+    left = node_left[c]
+    if left < 0 or node_left[left] >= 0 or node_left[left + 1] >= 0:
+        return False
+    n_left, n_right = node_count[left], node_count[left + 1]
+    if n_left + n_right > max_leaf:
+        return False
+    area = half_area(node_box[c])
+    if area <= 0.0:
+        return True
+    split = 2.0 * c_trav + c_isect * (
+        half_area(node_box[left]) * n_left + half_area(node_box[left + 1]) * n_right
+    ) / area
+    return c_isect * (n_left + n_right) <= split
+
+
+@njit(cache=True)
+def collapse_wide(node_box, node_left, node_start, node_count, c_trav, c_isect, max_leaf):
     """Collapse a binary BVH into WIDTH-wide nodes (repeatedly open the child with the largest
-    surface area), laid out depth first.
+    surface area), laid out depth first. A child that would become a wide node holding just two
+    leaves becomes one leaf instead when ``merges_into_leaf`` says so.
 
     Returns
     -------
@@ -445,10 +476,15 @@ def collapse_wide(node_box, node_left, node_start, node_count):
                 bounds[node, 2 * a + 1, j] = node_box[c, 3 + a]
             if node_left[c] < 0:
                 links[node, j] = leaf_link(node_start[c], node_count[c])
+            elif merges_into_leaf(node_box, node_left, node_count, c, c_trav, c_isect, max_leaf):
+                left = node_left[c]
+                links[node, j] = leaf_link(node_start[left],
+                                           node_count[left] + node_count[left + 1])  # fmt: skip
+                kids[j] = -1
         # Push inner children in reverse so slot 0's subtree comes next (depth-first layout).
         for j in range(n_kids - 1, -1, -1):
             c = kids[j]
-            if node_left[c] >= 0:
+            if c >= 0 and node_left[c] >= 0:
                 stack_bin[sp], stack_parent[sp], stack_slot[sp] = c, node, j
                 sp += 1
     return bounds[:m].copy(), links[:m].copy()

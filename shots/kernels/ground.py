@@ -28,7 +28,7 @@ G_DISTANCE = 12
 N_GROUND = 13
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def intersect_ground(ground, ox, oy, oz, dx, dy, dz, t_min, t_max):
     """Nearest floor hit within (t_min, t_max).
 

@@ -26,7 +26,7 @@ L_AREA = 19  # |edge_u × edge_v|
 N_LIGHT_COLS = 20
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def range_window(distance, light_range):
     """The range window clamp(1 − (d/range)⁴, 0, 1) of KHR_lights_punctual ("Range Property").
 
@@ -39,14 +39,14 @@ def range_window(distance, light_range):
     return min(max(w, 0.0), 1.0)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def spot_attenuation(cos_axis, scale, offset):
     """Smooth cone falloff (KHR_lights_punctual, "Inner and Outer Cone Angles")."""
     a = min(max(cos_axis * scale + offset, 0.0), 1.0)
     return a * a
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def sample_light(lights, k, px, py, pz, u1, u2):
     """Sample light ``k`` as seen from point p.
 

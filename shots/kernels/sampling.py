@@ -13,7 +13,7 @@ from numba import njit
 MASK32 = 0xFFFFFFFF
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def pcg_hash(x):
     """32-bit PCG output permutation as a hash (Jarzynski & Olano 2020, JCGT 9(3), "pcg")."""
     state = (x * 747796405 + 2891336453) & MASK32
@@ -22,16 +22,21 @@ def pcg_hash(x):
     return ((word >> 22) ^ word) & MASK32
 
 
-@njit(cache=True)
-def random01(seed, pixel, sample, dim):
-    """A uniform number in [0, 1) addressed by its coordinates (all non-negative ints)."""
+@njit(cache=True, error_model="numpy", _nrt=False)
+def random_bits(seed, pixel, sample, dim):
+    """32 random bits addressed by their coordinates (all non-negative ints)."""
     h = pcg_hash((seed & MASK32) ^ pcg_hash(pixel & MASK32))
     h = pcg_hash(h ^ (sample & MASK32))
-    h = pcg_hash(h ^ ((dim * 0x9E3779B9) & MASK32))
-    return h * (1.0 / 4294967296.0)
+    return pcg_hash(h ^ ((dim * 0x9E3779B9) & MASK32))
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
+def random01(seed, pixel, sample, dim):
+    """A uniform number in [0, 1) addressed by its coordinates (all non-negative ints)."""
+    return random_bits(seed, pixel, sample, dim) * (1.0 / 4294967296.0)
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
 def stratum(index, count, u1, u2):
     """Point ``index`` of a jittered grid of ``count`` cells over [0, 1)², jitter (u1, u2).
 
@@ -44,7 +49,7 @@ def stratum(index, count, u1, u2):
     return (ix + u1) / nx, (iy + u2) / ny
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def tent_warp(u):
     """Map u in [0, 1) to an offset in (−1, 1) distributed as the tent filter 1 − |x|.
 
@@ -57,7 +62,7 @@ def tent_warp(u):
     return 1.0 - math.sqrt(2.0 - v)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def cosine_hemisphere(u1, u2):
     """Cosine-weighted direction on the +z hemisphere (Malley's method); pdf = cos θ / π."""
     r = math.sqrt(u1)
@@ -65,7 +70,7 @@ def cosine_hemisphere(u1, u2):
     return r * math.cos(phi), r * math.sin(phi), math.sqrt(max(0.0, 1.0 - u1))
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def orthonormal_basis(nx, ny, nz):
     """Tangent and bitangent completing unit n to a right-handed frame.
 
@@ -84,14 +89,14 @@ def orthonormal_basis(nx, ny, nz):
     )
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def _gcd(a, b):
     while b:
         a, b = b, a % b
     return a
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def spread_count(per_hit, samples):
     """Rays one hit casts when a pixel's ``samples`` camera samples share one stratified set.
 
@@ -102,7 +107,7 @@ def spread_count(per_hit, samples):
     return max(1, (per_hit + samples - 1) // samples)
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def spread_stratum(i, n_hit, sample, samples, key, u1, u2):
     """Point ``i`` of a hit's ``n_hit`` rays in the pixel-wide jittered grid of n_hit·samples cells.
 
@@ -117,7 +122,7 @@ def spread_stratum(i, n_hit, sample, samples, key, u1, u2):
     return stratum(index, total, u1, u2)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def pixel_key(seed, pixel, purpose):
     """A hash fixed for one pixel and one use (a light, the glossy lobe), shared by its samples."""
     return pcg_hash((pcg_hash((seed ^ (purpose * 0x85EBCA6B)) & MASK32) ^ pixel) & MASK32)

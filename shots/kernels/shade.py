@@ -12,11 +12,12 @@ Whitted-style recursion, unrolled onto a small per-thread ray stack. At each hit
   absorption over the traced distance for volumes (KHR_materials_transmission / _volume);
 - coverage: BLEND surfaces and the shadow catcher continue the camera ray behind them.
 
-Argument groups are passed as tuples so every function takes the same few names:
-    bvh = (node_bounds, node_links, tri_verts, tri_ids)                 shots.accel.Bvh
-    geo = (positions, normals, tangents, uvs, colors, triangles, tri_material)
-    mats = (params, mat_texture, mat_texcoord, mat_uv, texels, tex_info)
-    env = (env_map (h, w, 3) float32, env_sh (9, 3) float64, rotation (1,) float64)
+Inputs are few wide arrays (``shots.kernels.layout``); the BVH and the scene go as tuples:
+    bvh = (node_bounds, node_links, tri_verts, tri_ids)          shots.accel.Bvh
+    scene = (verts, faces, materials, texels, tex_info)          packed by shots.render
+Everything is borrowed (``shots.kernels.borrow``) at the top of each parallel work item: the
+helpers are called per ray, and counting references to their array arguments cost more than
+the ray queries.
 """
 
 from __future__ import annotations
@@ -26,6 +27,7 @@ import math
 import numpy as np
 from numba import njit, prange
 
+from shots.kernels.borrow import borrow
 from shots.kernels.brdf import (
     INV_PI,
     alpha_of,
@@ -40,6 +42,7 @@ from shots.kernels.brdf import (
 )
 from shots.kernels.ground import (
     G_B,
+    G_G,
     G_KIND,
     G_R,
     G_ROUGHNESS,
@@ -48,13 +51,43 @@ from shots.kernels.ground import (
     GROUND_NONE,
     intersect_ground,
 )
+from shots.kernels.layout import (
+    BG_ENVIRONMENT,
+    BG_TRANSPARENT,
+    F_AREA_SAMPLES,
+    F_ASPECT,
+    F_BACKGROUND,
+    F_BG_BOTTOM,
+    F_BG_TOP,
+    F_CONTACT_SAMPLES,
+    F_ENV_ROTATION,
+    F_EYE,
+    F_GLOSSY_SAMPLES,
+    F_HEIGHT,
+    F_MAX_DEPTH,
+    F_ORTHO,
+    F_SAMPLES,
+    F_SEE_THROUGH,
+    F_SEED,
+    F_SH,
+    F_TAN_Y,
+    F_U,
+    F_V,
+    F_W,
+    F_WIDTH,
+    F_YMAG,
+    N_WORK,
+    W_ACC,
+    W_DIM,
+    W_ENV,
+)
 from shots.kernels.lights import KIND_AREA, L_KIND, sample_light
 from shots.kernels.offset import offset_origin_one
 from shots.kernels.sampling import (
     cosine_hemisphere,
     orthonormal_basis,
     pixel_key,
-    random01,
+    random_bits,
     spread_count,
     spread_stratum,
     stratum,
@@ -102,17 +135,6 @@ from shots.kernels.surface import (
 from shots.kernels.texture import sample_equirect
 from shots.kernels.traverse import any_hit_one, closest_hit_one, new_stack
 
-# --- settings (int64 row) ----------------------------------------------------------------------
-C_WIDTH, C_HEIGHT, C_SAMPLES, C_AREA_SAMPLES, C_GLOSSY_SAMPLES = 0, 1, 2, 3, 4
-C_MAX_DEPTH, C_SEED, C_SEE_THROUGH, C_BACKGROUND, C_CONTACT_SAMPLES = 5, 6, 7, 8, 9
-N_SETTINGS = 10
-BG_TRANSPARENT, BG_SOLID, BG_GRADIENT, BG_ENVIRONMENT = 0, 1, 2, 3
-
-# --- camera (float64 row): eye, right u, up v, backward w, lens ------------------------------
-CAM_EYE, CAM_U, CAM_V, CAM_W = 0, 3, 6, 9
-CAM_TAN_Y, CAM_ASPECT, CAM_ORTHO, CAM_YMAG = 12, 13, 14, 15
-N_CAMERA = 16
-
 # --- ray stack columns --------------------------------------------------------------------------
 R_O, R_D, R_W = 0, 3, 6  # origin, unit direction, rgb weight
 R_COVER = 9  # share of the pixel's alpha this ray decides (camera chain only)
@@ -122,7 +144,7 @@ R_SIGMA = 12  # (3) absorption coefficients of the medium the ray travels in (1/
 R_CAMERA = 15  # 1 for camera rays and their straight continuations
 R_START = 16  # (3) where the ray's medium segment began: its un-offset surface point
 N_RAY = 19
-STACK_RAYS = 96
+STACK_RAYS = 96  # the last row holds the ray being traced
 
 MIRROR_ROUGHNESS = 0.03  # below: one ideal mirror ray (α ≤ 1e-3, a delta in practice)
 # At and above these roughnesses a lobe is taken as blurred environment light instead of traced:
@@ -144,23 +166,27 @@ SH_Y22 = math.sqrt(15.0 / (16.0 * math.pi))
 # =================================================================================================
 # small helpers
 # =================================================================================================
-@njit(cache=True)
-def next_random(seed, pixel, sample, dim):
-    """The next number of this camera sample's sequence (``dim`` is a (1,) int64 counter)."""
-    d = dim[0]
-    dim[0] = d + 1
-    return random01(seed, pixel, sample, d)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def next_pair(seed, pixel, sample, work):
+    """The next two numbers of this camera sample's sequence (counter in work[W_DIM]).
+
+    Both come from one 32-bit hash, 16 bits each: they only jitter a point inside a stratum.
+    """
+    d = int(work[W_DIM])
+    work[W_DIM] = d + 1
+    h = random_bits(seed, pixel, sample, d)
+    return ((h & 0xFFFF) + 0.5) * (1.0 / 65536.0), ((h >> 16) + 0.5) * (1.0 / 65536.0)
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def luminance(r, g, b):
     """Relative luminance of linear Rec.709 RGB (ITU-R BT.709)."""
     return 0.2126 * r + 0.7152 * g + 0.0722 * b
 
 
-@njit(cache=True)
-def sh_irradiance(sh, nx, ny, nz):
-    """E(n) from nine SH coefficients (Ramamoorthi & Hanrahan 2001, eq. 13)."""
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def sh_irradiance(frame, nx, ny, nz):
+    """E(n) from the nine SH coefficients in frame[F_SH:] (Ramamoorthi & Hanrahan 2001, eq. 13)."""
     c0 = SH_Y0
     c1 = SH_Y1 * ny
     c2 = SH_Y1 * nz
@@ -171,28 +197,28 @@ def sh_irradiance(sh, nx, ny, nz):
     c7 = SH_Y2 * nx * nz
     c8 = SH_Y22 * (nx * nx - ny * ny)
     e0 = (
-        c0 * sh[0, 0] + c1 * sh[1, 0] + c2 * sh[2, 0] + c3 * sh[3, 0] + c4 * sh[4, 0]
-        + c5 * sh[5, 0] + c6 * sh[6, 0] + c7 * sh[7, 0] + c8 * sh[8, 0]
+        c0 * frame[F_SH + 0] + c1 * frame[F_SH + 3] + c2 * frame[F_SH + 6] + c3 * frame[F_SH + 9] + c4 * frame[F_SH + 12]
+        + c5 * frame[F_SH + 15] + c6 * frame[F_SH + 18] + c7 * frame[F_SH + 21] + c8 * frame[F_SH + 24]
     )  # fmt: skip
     e1 = (
-        c0 * sh[0, 1] + c1 * sh[1, 1] + c2 * sh[2, 1] + c3 * sh[3, 1] + c4 * sh[4, 1]
-        + c5 * sh[5, 1] + c6 * sh[6, 1] + c7 * sh[7, 1] + c8 * sh[8, 1]
+        c0 * frame[F_SH + 1] + c1 * frame[F_SH + 4] + c2 * frame[F_SH + 7] + c3 * frame[F_SH + 10] + c4 * frame[F_SH + 13]
+        + c5 * frame[F_SH + 16] + c6 * frame[F_SH + 19] + c7 * frame[F_SH + 22] + c8 * frame[F_SH + 25]
     )  # fmt: skip
     e2 = (
-        c0 * sh[0, 2] + c1 * sh[1, 2] + c2 * sh[2, 2] + c3 * sh[3, 2] + c4 * sh[4, 2]
-        + c5 * sh[5, 2] + c6 * sh[6, 2] + c7 * sh[7, 2] + c8 * sh[8, 2]
+        c0 * frame[F_SH + 2] + c1 * frame[F_SH + 5] + c2 * frame[F_SH + 8] + c3 * frame[F_SH + 11] + c4 * frame[F_SH + 14]
+        + c5 * frame[F_SH + 17] + c6 * frame[F_SH + 20] + c7 * frame[F_SH + 23] + c8 * frame[F_SH + 26]
     )  # fmt: skip
     return max(e0, 0.0), max(e1, 0.0), max(e2, 0.0)
 
 
-@njit(cache=True)
-def env_radiance(env, dx, dy, dz, scratch):
-    """Environment radiance along a direction (into ``scratch`` (3,)); returns r, g, b."""
-    sample_equirect(env[0], dx, dy, dz, env[2][0], 1.0, scratch)
-    return scratch[0], scratch[1], scratch[2]
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def env_radiance(env_map, frame, dx, dy, dz, work):
+    """Environment radiance along a direction (via work[W_ENV:+3]); returns r, g, b."""
+    sample_equirect(env_map, dx, dy, dz, frame[F_ENV_ROTATION], 1.0, work, W_ENV)
+    return work[W_ENV], work[W_ENV + 1], work[W_ENV + 2]
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def offset_point(surf, side):
     """The hit point pushed off the surface, toward the ray's side (+1) or through it (−1)."""
     return offset_origin_one(
@@ -201,10 +227,10 @@ def offset_point(surf, side):
     )  # fmt: skip
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def push_ray(stack, sp, ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, sr, sg, sb, camera):
     """Push a ray onto the stack; returns the new stack size (rays beyond capacity are dropped)."""
-    if sp >= stack.shape[0]:
+    if sp >= stack.shape[0] - 1:  # the last row is the current ray
         return sp
     row = stack[sp]
     row[R_O] = ox
@@ -229,7 +255,7 @@ def push_ray(stack, sp, ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, 
     return sp + 1
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def set_start(stack, sp, x, y, z):
     """Record the true surface point the ray on top of the stack (row sp − 1) starts from."""
     if sp > 0:
@@ -241,9 +267,8 @@ def set_start(stack, sp, x, y, z):
 # =================================================================================================
 # visibility
 # =================================================================================================
-@njit(cache=True)
-def find_surface(bvh, geo, mats, ground, ox, oy, oz, dx, dy, dz, t_min, camera, surf, uv_sets,
-                 texel, tstack):  # fmt: skip
+@njit(cache=True, error_model="numpy", _nrt=False)
+def find_surface(bvh, scene, ground, ox, oy, oz, dx, dy, dz, t_min, camera, surf, work, tstack):
     """The first surface a ray sees, skipping cut-out and single-sided back-face hits.
 
     Returns
@@ -252,8 +277,7 @@ def find_surface(bvh, geo, mats, ground, ox, oy, oz, dx, dy, dz, t_min, camera, 
     what : 0 miss, 1 mesh, 2 floor. ``surf`` holds the surface for hits.
     """
     node_bounds, node_links, tri_verts, tri_ids = bvh
-    positions, normals, tangents, uvs, colors, triangles, tri_material = geo
-    params, mat_texture, mat_texcoord, mat_uv, texels, tex_info = mats
+    verts, faces, materials, texels, tex_info = scene
     kind = int(ground[G_KIND])
     ground_seen = kind != GROUND_NONE and (kind != GROUND_CATCHER or camera)
     t_lo = t_min
@@ -267,25 +291,21 @@ def find_surface(bvh, geo, mats, ground, ox, oy, oz, dx, dy, dz, t_min, camera, 
             if tg < t:
                 ground_surface(
                     ox + tg * dx, oy + tg * dy, oz + tg * dz, gnx, gny, gnz,
-                    ground[G_R:G_B + 1], ground[G_ROUGHNESS], surf,
+                    ground[G_R], ground[G_G], ground[G_B], ground[G_ROUGHNESS], surf,
                 )  # fmt: skip
                 return tg, 2
         if k < 0:
             return np.inf, 0
-        mesh_surface(
-            k, b1, b2, dx, dy, dz, positions, normals, tangents, uvs, colors, triangles,
-            tri_material, params, mat_texture, mat_texcoord, mat_uv, texels, tex_info,
-            surf, uv_sets, texel,
-        )  # fmt: skip
+        mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_info, surf, work)
         if surf[S_SKIP] == 0.0 and surf[S_OPACITY] > 0.0:
             return t, 1
         t_lo = t * (1.0 + 1e-7) + 1e-9
     return np.inf, 0
 
 
-@njit(cache=True)
-def transmittance(bvh, geo, mats, ground, see_through, ox, oy, oz, dx, dy, dz, t_max, surf,
-                  uv_sets, texel, tstack):  # fmt: skip
+@njit(cache=True, error_model="numpy", _nrt=False)
+def shadow_ray(bvh, scene, ground, see_through, ox, oy, oz, dx, dy, dz, t_max, surf, work,
+                  tstack):  # fmt: skip
     """Light let through along a shadow ray (origin already offset) up to ``t_max``.
 
     Opaque geometry blocks it; cut-outs pass it; BLEND surfaces pass 1 − α; transmissive
@@ -303,8 +323,7 @@ def transmittance(bvh, geo, mats, ground, see_through, ox, oy, oz, dx, dy, dz, t
                        tstack):  # fmt: skip
             return 0.0, 0.0, 0.0
         return 1.0, 1.0, 1.0
-    positions, normals, tangents, uvs, colors, triangles, tri_material = geo
-    params, mat_texture, mat_texcoord, mat_uv, texels, tex_info = mats
+    verts, faces, materials, texels, tex_info = scene
     tr, tg_, tb = 1.0, 1.0, 1.0
     t_lo = 0.0
     for _ in range(MAX_SKIPS):
@@ -314,11 +333,7 @@ def transmittance(bvh, geo, mats, ground, see_through, ox, oy, oz, dx, dy, dz, t
         )  # fmt: skip
         if k < 0:
             return tr, tg_, tb
-        mesh_surface(
-            k, b1, b2, dx, dy, dz, positions, normals, tangents, uvs, colors, triangles,
-            tri_material, params, mat_texture, mat_texcoord, mat_uv, texels, tex_info,
-            surf, uv_sets, texel,
-        )  # fmt: skip
+        mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_info, surf, work)
         a = surf[S_OPACITY]
         through = (1.0 - surf[S_METALLIC]) * surf[S_TRANSMISSION]
         tr *= (1.0 - a) + a * through * surf[S_BASE_R]
@@ -333,13 +348,13 @@ def transmittance(bvh, geo, mats, ground, see_through, ox, oy, oz, dx, dy, dz, t
 # =================================================================================================
 # BSDF evaluation
 # =================================================================================================
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def dielectric_f0(surf, c):
     """KHR_materials_specular F0 of colour channel ``c``: min(F0(ior)·colour, 1)·factor."""
     return min(f0_from_ior(surf[S_IOR]) * surf[S_SPEC_R + c], 1.0) * surf[S_SPECULAR]
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def clearcoat_fresnel(surf, vx, vy, vz):
     """clearcoat · F_Schlick(0.04, N_c·V) (KHR_materials_clearcoat, "fresnel_coat")."""
     cc = surf[S_CLEARCOAT]
@@ -349,7 +364,7 @@ def clearcoat_fresnel(surf, vx, vy, vz):
     return cc * (0.04 + 0.96 * schlick_weight(c))
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def eval_bsdf(surf, vx, vy, vz, lx, ly, lz):
     """f(v, l)·(N·L) of the surface for unit view v and light l; returns r, g, b."""
     nx, ny, nz = surf[S_NX], surf[S_NY], surf[S_NZ]
@@ -394,10 +409,9 @@ def eval_bsdf(surf, vx, vy, vz, lx, ly, lz):
     return fr * n_dot_l, fg * n_dot_l, fb * n_dot_l
 
 
-@njit(cache=True)
-def direct_light(surf, vx, vy, vz, lights, area_samples, spp, bvh, geo, mats, ground,
-                 see_through, seed, pixel, sample, dim, scratch_surf, uv_sets, texel,
-                 tstack):  # fmt: skip
+@njit(cache=True, error_model="numpy", _nrt=False)
+def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sample, bvh, scene,
+                 ground, see_through, surf2, work, tstack):  # fmt: skip
     """Reflected radiance from all look lights with shadow rays; returns r, g, b.
 
     An area light gets ``spread_count(area_samples, spp)`` stratified shadow rays here, their
@@ -413,9 +427,8 @@ def direct_light(surf, vx, vy, vz, lights, area_samples, spp, bvh, geo, mats, gr
         for s in range(n):
             u1, u2 = 0.5, 0.5
             if area:
-                u1, u2 = spread_stratum(s, n, sample, spp, key,
-                                        next_random(seed, pixel, sample, dim),
-                                        next_random(seed, pixel, sample, dim))  # fmt: skip
+                r1, r2 = next_pair(seed, pixel, sample, work)
+                u1, u2 = spread_stratum(s, n, sample, spp, key, r1, r2)
             wx, wy, wz, dist, er, eg, eb = sample_light(lights, k, px, py, pz, u1, u2)
             if er + eg + eb <= 0.0 or wx * gx + wy * gy + wz * gz <= 0.0:
                 continue
@@ -427,19 +440,18 @@ def direct_light(surf, vx, vy, vz, lights, area_samples, spp, bvh, geo, mats, gr
                 continue
             ox, oy, oz = offset_point(surf, 1.0)
             t_max = np.inf if dist == np.inf else dist * (1.0 - 1e-5)
-            tr, tg, tb = transmittance(bvh, geo, mats, ground, see_through, ox, oy, oz,
-                                       wx, wy, wz, t_max, scratch_surf, uv_sets, texel,
-                                       tstack)  # fmt: skip
+            tr, tg, tb = shadow_ray(bvh, scene, ground, see_through, ox, oy, oz, wx, wy, wz, t_max,
+                                       surf2, work, tstack)  # fmt: skip
             lr += fr * tr
             lg += fg * tg
             lb += fb * tb
     return lr, lg, lb
 
 
-@njit(cache=True)
-def shadow_amount(surf, lights, area_samples, contact_samples, spp, env, bvh, geo, mats, ground,
-                  see_through, seed, pixel, sample, dim, scratch_surf, uv_sets, texel, tstack,
-                  scratch3):  # fmt: skip
+@njit(cache=True, error_model="numpy", _nrt=False)
+def shadow_amount(surf, lights, area_samples, contact_samples, spp, seed, pixel, sample,
+                  frame, bvh, scene, ground, see_through, surf2, work,
+                  tstack):  # fmt: skip
     """How much of the light a shadow-catcher point loses to the product, in [0, 1].
 
     1 − (light arriving) / (light that would arrive without the product), by luminance, from the
@@ -456,9 +468,8 @@ def shadow_amount(surf, lights, area_samples, contact_samples, spp, env, bvh, ge
         for s in range(n):
             u1, u2 = 0.5, 0.5
             if area:
-                u1, u2 = spread_stratum(s, n, sample, spp, key,
-                                        next_random(seed, pixel, sample, dim),
-                                        next_random(seed, pixel, sample, dim))  # fmt: skip
+                r1, r2 = next_pair(seed, pixel, sample, work)
+                u1, u2 = spread_stratum(s, n, sample, spp, key, r1, r2)
             wx, wy, wz, dist, er, eg, eb = sample_light(lights, k, px, py, pz, u1, u2)
             cos = wx * nx + wy * ny + wz * nz
             if cos <= 0.0:
@@ -467,31 +478,32 @@ def shadow_amount(surf, lights, area_samples, contact_samples, spp, env, bvh, ge
             if e <= 0.0:
                 continue
             t_max = np.inf if dist == np.inf else dist * (1.0 - 1e-5)
-            tr, tg, tb = transmittance(bvh, geo, mats, ground, see_through, ox, oy, oz,
-                                       wx, wy, wz, t_max, scratch_surf, uv_sets, texel,
-                                       tstack)  # fmt: skip
+            tr, tg, tb = shadow_ray(bvh, scene, ground, see_through, ox, oy, oz, wx, wy, wz, t_max,
+                                       surf2, work, tstack)  # fmt: skip
             full += e
             lit += e * luminance(tr, tg, tb)
     if contact_samples > 0:
+        # the environment's share: its irradiance here, with the visible fraction of the sky
+        # from cosine-weighted rays (the sky counted as even: a soft, direction-free contact
+        # shadow; the look lights supply the directional ones)
+        er, eg, eb = sh_irradiance(frame, nx, ny, nz)
+        e_env = luminance(er, eg, eb)
         t1x, t1y, t1z, t2x, t2y, t2z = orthonormal_basis(nx, ny, nz)
         n = spread_count(contact_samples, spp)
         key = pixel_key(seed, pixel, lights.shape[0])
+        seen = 0.0
         for s in range(n):
-            a, b = spread_stratum(s, n, sample, spp, key, next_random(seed, pixel, sample, dim),
-                                  next_random(seed, pixel, sample, dim))  # fmt: skip
+            r1, r2 = next_pair(seed, pixel, sample, work)
+            a, b = spread_stratum(s, n, sample, spp, key, r1, r2)
             lx, ly, lz = cosine_hemisphere(a, b)
             wx = lx * t1x + ly * t2x + lz * nx
             wy = lx * t1y + ly * t2y + lz * ny
             wz = lx * t1z + ly * t2z + lz * nz
-            rr, rg, rb = env_radiance(env, wx, wy, wz, scratch3)
-            e = math.pi * luminance(rr, rg, rb) / n
-            if e <= 0.0:
-                continue
-            tr, tg, tb = transmittance(bvh, geo, mats, ground, see_through, ox, oy, oz,
-                                       wx, wy, wz, np.inf, scratch_surf, uv_sets, texel,
-                                       tstack)  # fmt: skip
-            full += e
-            lit += e * luminance(tr, tg, tb)
+            tr, tg, tb = shadow_ray(bvh, scene, ground, see_through, ox, oy, oz, wx, wy, wz,
+                                       np.inf, surf2, work, tstack)  # fmt: skip
+            seen += luminance(tr, tg, tb)
+        full += e_env
+        lit += e_env * seen / n
     if full <= 0.0:
         return 0.0
     return min(max(1.0 - lit / full, 0.0), 1.0)
@@ -500,13 +512,13 @@ def shadow_amount(surf, lights, area_samples, contact_samples, spp, env, bvh, ge
 # =================================================================================================
 # one hit: add what it sends back along the ray, push the rays it spawns
 # =================================================================================================
-@njit(cache=True)
-def shade_hit(surf, ray, t_hit, settings, lights, env, bvh, geo, mats, ground, pixel, sample,
-              dim, acc, stack, sp, scratch_surf, uv_sets, texel, tstack, scratch3):  # fmt: skip
-    """Shade one surface hit of ``ray`` (a stack row); returns the new stack size."""
-    seed = settings[C_SEED]
-    see_through = settings[C_SEE_THROUGH] != 0
-    max_depth = settings[C_MAX_DEPTH]
+@njit(cache=True, error_model="numpy", _nrt=False)
+def shade_hit(surf, ray, t_hit, frame, lights, env_map, bvh, scene, ground, pixel, sample, stack,
+              sp, surf2, work, tstack):  # fmt: skip
+    """Shade one surface hit of ``ray`` (N_RAY,); adds to work[W_ACC:+4], returns the stack size."""
+    seed = int(frame[F_SEED])
+    see_through = frame[F_SEE_THROUGH] != 0.0
+    max_depth = int(frame[F_MAX_DEPTH])
     depth = int(ray[R_DEPTH])
     dx, dy, dz = ray[R_D], ray[R_D + 1], ray[R_D + 2]
     vx, vy, vz = -dx, -dy, -dz
@@ -534,11 +546,11 @@ def shade_hit(surf, ray, t_hit, settings, lights, env, bvh, geo, mats, ground, p
         wr *= a
         wg *= a
         wb *= a
-    acc[3] += cover * a
+    work[W_ACC + 3] += cover * a
     if surf[S_UNLIT] != 0.0:  # KHR_materials_unlit: the base colour is the result
-        acc[0] += wr * surf[S_BASE_R]
-        acc[1] += wg * surf[S_BASE_G]
-        acc[2] += wb * surf[S_BASE_B]
+        work[W_ACC + 0] += wr * surf[S_BASE_R]
+        work[W_ACC + 1] += wg * surf[S_BASE_G]
+        work[W_ACC + 2] += wb * surf[S_BASE_B]
         return sp
 
     nx, ny, nz = surf[S_NX], surf[S_NY], surf[S_NZ]
@@ -547,14 +559,13 @@ def shade_hit(surf, ray, t_hit, settings, lights, env, bvh, geo, mats, ground, p
     under = 1.0 - coat  # what the clearcoat lets through to the base layer
 
     # emission and direct light
-    spp = settings[C_SAMPLES]
-    area_samples = settings[C_AREA_SAMPLES] if depth == 0 else 1
-    lr, lg, lb = direct_light(surf, vx, vy, vz, lights, area_samples, spp, bvh, geo, mats, ground,
-                              see_through, seed, pixel, sample, dim, scratch_surf, uv_sets,
-                              texel, tstack)  # fmt: skip
-    acc[0] += wr * (lr + under * surf[S_EM_R])
-    acc[1] += wg * (lg + under * surf[S_EM_G])
-    acc[2] += wb * (lb + under * surf[S_EM_B])
+    spp = int(frame[F_SAMPLES])
+    area_samples = int(frame[F_AREA_SAMPLES]) if depth == 0 else 1
+    lr, lg, lb = direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sample,
+                              bvh, scene, ground, see_through, surf2, work, tstack)  # fmt: skip
+    work[W_ACC + 0] += wr * (lr + under * surf[S_EM_R])
+    work[W_ACC + 1] += wg * (lg + under * surf[S_EM_G])
+    work[W_ACC + 2] += wb * (lb + under * surf[S_EM_B])
 
     # Fresnel split of the environment light. For transmissive volumes Schlick is taken on the
     # outside angle, and total internal reflection sends everything to the mirror.
@@ -581,10 +592,10 @@ def shade_hit(surf, ray, t_hit, settings, lights, env, bvh, geo, mats, ground, p
     spec2, diff2, trans2 = fresnel_split(surf, 2, fw, smooth, under, tir, tint)
 
     # diffuse environment light (SH irradiance), attenuated by the occlusion texture only
-    er, eg, eb = sh_irradiance(env[1], nx, ny, nz)
-    acc[0] += wr * diff0 * er * INV_PI * occlusion
-    acc[1] += wg * diff1 * eg * INV_PI * occlusion
-    acc[2] += wb * diff2 * eb * INV_PI * occlusion
+    er, eg, eb = sh_irradiance(frame, nx, ny, nz)
+    work[W_ACC + 0] += wr * diff0 * er * INV_PI * occlusion
+    work[W_ACC + 1] += wg * diff1 * eg * INV_PI * occlusion
+    work[W_ACC + 2] += wb * diff2 * eb * INV_PI * occlusion
 
     can_trace = depth + 1 <= max_depth
     px, py, pz = surf[S_PX], surf[S_PY], surf[S_PZ]
@@ -599,21 +610,21 @@ def shade_hit(surf, ray, t_hit, settings, lights, env, bvh, geo, mats, ground, p
         if roughness >= glossy_limit:
             # a wide lobe: the environment blurred like irradiance, seen along the mirror
             # direction (no occlusion) instead of noisy rays
-            qr, qg, qb = sh_irradiance(env[1], rx, ry, rz)
-            acc[0] += rw0 * qr * INV_PI
-            acc[1] += rw1 * qg * INV_PI
-            acc[2] += rw2 * qb * INV_PI
+            qr, qg, qb = sh_irradiance(frame, rx, ry, rz)
+            work[W_ACC + 0] += rw0 * qr * INV_PI
+            work[W_ACC + 1] += rw1 * qg * INV_PI
+            work[W_ACC + 2] += rw2 * qb * INV_PI
         elif can_trace and max(rw0, rw1, rw2) >= MIN_WEIGHT:
             sp = push_ray(stack, sp, ox, oy, oz, rx, ry, rz, rw0, rw1, rw2, 0.0, depth + 1, 0.0,
                           sr, sg, sb, 0.0)  # fmt: skip
             set_start(stack, sp, px, py, pz)
         else:
-            qr, qg, qb = env_radiance(env, rx, ry, rz, scratch3)
-            acc[0] += rw0 * qr
-            acc[1] += rw1 * qg
-            acc[2] += rw2 * qb
+            qr, qg, qb = env_radiance(env_map, frame, rx, ry, rz, work)
+            work[W_ACC + 0] += rw0 * qr
+            work[W_ACC + 1] += rw1 * qg
+            work[W_ACC + 2] += rw2 * qb
     else:
-        n_glossy = spread_count(settings[C_GLOSSY_SAMPLES], spp) if depth == 0 else 1
+        n_glossy = spread_count(int(frame[F_GLOSSY_SAMPLES]), spp) if depth == 0 else 1
         key = pixel_key(seed, pixel, lights.shape[0] + 1 + depth)
         alpha = alpha_of(roughness)
         t1x, t1y, t1z, t2x, t2y, t2z = orthonormal_basis(nx, ny, nz)
@@ -621,9 +632,8 @@ def shade_hit(surf, ray, t_hit, settings, lights, env, bvh, geo, mats, ground, p
         lvy = vx * t2x + vy * t2y + vz * t2z
         g1 = smith_g1(n_dot_v, alpha)
         for s in range(n_glossy):
-            a1, a2 = spread_stratum(s, n_glossy, sample, spp, key,
-                                    next_random(seed, pixel, sample, dim),
-                                    next_random(seed, pixel, sample, dim))  # fmt: skip
+            r1, r2 = next_pair(seed, pixel, sample, work)
+            a1, a2 = spread_stratum(s, n_glossy, sample, spp, key, r1, r2)
             hx_, hy_, hz_ = sample_ggx_vndf(lvx, lvy, n_dot_v, alpha, a1, a2)
             hx = hx_ * t1x + hy_ * t2x + hz_ * nx
             hy = hx_ * t1y + hy_ * t2y + hz_ * ny
@@ -651,10 +661,10 @@ def shade_hit(surf, ray, t_hit, settings, lights, env, bvh, geo, mats, ground, p
                           0.0, depth + 1, 0.0, sr, sg, sb, 0.0)  # fmt: skip
             set_start(stack, sp, px, py, pz)
         else:
-            qr, qg, qb = env_radiance(env, qx, qy, qz, scratch3)
-            acc[0] += wr * coat * qr
-            acc[1] += wg * coat * qg
-            acc[2] += wb * coat * qb
+            qr, qg, qb = env_radiance(env_map, frame, qx, qy, qz, work)
+            work[W_ACC + 0] += wr * coat * qr
+            work[W_ACC + 1] += wg * coat * qg
+            work[W_ACC + 2] += wb * coat * qb
 
     # --- transmission ---------------------------------------------------------------------------
     if transmission > 0.0 and not tir:
@@ -671,14 +681,14 @@ def shade_hit(surf, ray, t_hit, settings, lights, env, bvh, geo, mats, ground, p
                           0.0, nsr, nsg, nsb, 0.0)  # fmt: skip
             set_start(stack, sp, px, py, pz)
         else:
-            qr, qg, qb = env_radiance(env, tdx, tdy, tdz, scratch3)
-            acc[0] += tw0 * qr
-            acc[1] += tw1 * qg
-            acc[2] += tw2 * qb
+            qr, qg, qb = env_radiance(env_map, frame, tdx, tdy, tdz, work)
+            work[W_ACC + 0] += tw0 * qr
+            work[W_ACC + 1] += tw1 * qg
+            work[W_ACC + 2] += tw2 * qb
     return sp
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def fresnel_split(surf, c, fw, smooth, under, tir, tint):
     """Environment-light weights of channel ``c``: (reflection, diffuse, transmission).
 
@@ -698,7 +708,7 @@ def fresnel_split(surf, c, fw, smooth, under, tir, tint):
     return spec, diffuse, trans
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def absorption(surf, c):
     """Beer–Lambert coefficient σ = −ln(c)/d of channel ``c`` (KHR_materials_volume)."""
     d = surf[S_ATT_DISTANCE]
@@ -713,140 +723,153 @@ def absorption(surf, c):
 # =================================================================================================
 # one camera sample
 # =================================================================================================
-@njit(cache=True)
-def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, settings, lights, env, bvh, geo,
-                 mats, ground, pixel, sample, dim, acc, stack, ray, surf, scratch_surf, uv_sets,
-                 texel, tstack, scratch3):  # fmt: skip
-    """Trace one camera ray and its tree; adds premultiplied RGBA into ``acc`` (4,).
+@njit(cache=True, error_model="numpy", _nrt=False)
+def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env_map, bvh, scene,
+                 ground, pixel, sample, stack, surf, surf2, work, tstack):  # fmt: skip
+    """Trace one camera ray and its tree; adds premultiplied RGBA into work[W_ACC:+4].
 
-    ``stack`` (STACK_RAYS, N_RAY) and ``ray`` (N_RAY,) are scratch, as are the rest.
+    ``stack`` (STACK_RAYS, N_RAY), ``surf``, ``surf2`` (N_SURFACE,) and ``work`` are scratch.
     """
-    background = settings[C_BACKGROUND]
+    background = int(frame[F_BACKGROUND])
+    ray = stack[STACK_RAYS - 1]
+    # the camera ray first: most that miss everything are done without the ray stack
+    t, what = find_surface(bvh, scene, ground, ox, oy, oz, dx, dy, dz, 0.0, True, surf, work,
+                           tstack)  # fmt: skip
+    if what == 0 and background == BG_TRANSPARENT:
+        return
     sp = push_ray(stack, 0, ox, oy, oz, dx, dy, dz, 1.0, 1.0, 1.0, 1.0, 0, 0.0, 0.0, 0.0, 0.0, 1.0)
+    first = True
     while sp > 0:
         sp -= 1
-        ray[:] = stack[sp]
+        for c in range(N_RAY):  # element copy: a slice copy between views of one array allocates
+            ray[c] = stack[sp, c]
         rox, roy, roz = ray[R_O], ray[R_O + 1], ray[R_O + 2]
         rdx, rdy, rdz = ray[R_D], ray[R_D + 1], ray[R_D + 2]
         camera = ray[R_CAMERA] != 0.0
-        t, what = find_surface(bvh, geo, mats, ground, rox, roy, roz, rdx, rdy, rdz, ray[R_TMIN],
-                               camera, surf, uv_sets, texel, tstack)  # fmt: skip
-        if what == 0:
-            if camera and background != BG_ENVIRONMENT:
-                if background != BG_TRANSPARENT:
-                    acc[0] += ray[R_W] * bg_r
-                    acc[1] += ray[R_W + 1] * bg_g
-                    acc[2] += ray[R_W + 2] * bg_b
-                    acc[3] += ray[R_COVER]
-            else:
-                qr, qg, qb = env_radiance(env, rdx, rdy, rdz, scratch3)
-                acc[0] += ray[R_W] * qr
-                acc[1] += ray[R_W + 1] * qg
-                acc[2] += ray[R_W + 2] * qb
-                if camera:
-                    acc[3] += ray[R_COVER]
-            continue
-        if what == 2 and int(ground[G_KIND]) == GROUND_CATCHER:
-            # invisible floor: its shadow becomes coverage of black (premultiplied: alpha only)
-            shadow = shadow_amount(surf, lights, settings[C_AREA_SAMPLES],
-                                   settings[C_CONTACT_SAMPLES], settings[C_SAMPLES], env, bvh,
-                                   geo, mats, ground,
-                                   settings[C_SEE_THROUGH] != 0, settings[C_SEED], pixel, sample,
-                                   dim, scratch_surf, uv_sets, texel, tstack,
-                                   scratch3)  # fmt: skip
+        if first:  # found above
+            first = False
+        else:
+            t, what = find_surface(bvh, scene, ground, rox, roy, roz, rdx, rdy, rdz, ray[R_TMIN],
+                                   camera, surf, work, tstack)  # fmt: skip
+        if what == 2 and camera and int(ground[G_KIND]) == GROUND_CATCHER:
+            # invisible floor: its shadow becomes coverage of black (premultiplied: alpha only);
+            # the rest of the ray shows the background (nothing stands below the floor)
+            shadow = shadow_amount(surf, lights, int(frame[F_AREA_SAMPLES]),
+                                   int(frame[F_CONTACT_SAMPLES]), int(frame[F_SAMPLES]),
+                                   int(frame[F_SEED]), pixel, sample, frame, bvh, scene,
+                                   ground, frame[F_SEE_THROUGH] != 0.0, surf2, work,
+                                   tstack)  # fmt: skip
             a = min(shadow * ground[G_STRENGTH], 1.0)
-            acc[3] += ray[R_COVER] * a
-            sp = push_ray(stack, sp, rox, roy, roz, rdx, rdy, rdz, ray[R_W] * (1.0 - a),
-                          ray[R_W + 1] * (1.0 - a), ray[R_W + 2] * (1.0 - a),
-                          ray[R_COVER] * (1.0 - a), ray[R_DEPTH], t * (1.0 + 1e-7) + 1e-9,
-                          ray[R_SIGMA], ray[R_SIGMA + 1], ray[R_SIGMA + 2], 1.0)  # fmt: skip
-            set_start(stack, sp, ray[R_START], ray[R_START + 1], ray[R_START + 2])
-            continue
-        sp = shade_hit(surf, ray, t, settings, lights, env, bvh, geo, mats, ground, pixel, sample,
-                       dim, acc, stack, sp, scratch_surf, uv_sets, texel, tstack,
-                       scratch3)  # fmt: skip
+            work[W_ACC + 3] += ray[R_COVER] * a
+            for c in range(3):
+                ray[R_W + c] *= 1.0 - a
+            ray[R_COVER] *= 1.0 - a
+            what = 0
+        if what != 0:
+            sp = shade_hit(surf, ray, t, frame, lights, env_map, bvh, scene, ground, pixel, sample,
+                           stack, sp, surf2, work, tstack)  # fmt: skip
+        elif camera and background != BG_ENVIRONMENT:
+            if background != BG_TRANSPARENT:
+                work[W_ACC] += ray[R_W] * bg_r
+                work[W_ACC + 1] += ray[R_W + 1] * bg_g
+                work[W_ACC + 2] += ray[R_W + 2] * bg_b
+                work[W_ACC + 3] += ray[R_COVER]
+        else:
+            qr, qg, qb = env_radiance(env_map, frame, rdx, rdy, rdz, work)
+            work[W_ACC] += ray[R_W] * qr
+            work[W_ACC + 1] += ray[R_W + 1] * qg
+            work[W_ACC + 2] += ray[R_W + 2] * qb
+            if camera:
+                work[W_ACC + 3] += ray[R_COVER]
 
 
-@njit(cache=True)
-def camera_ray(cam, width, height, px, py):
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def camera_ray(frame, px, py):
     """The ray through image position (px right, py down, in pixels), as ``Camera.rays_at``."""
-    sx = 2.0 * px / width - 1.0
-    sy = 1.0 - 2.0 * py / height
-    if cam[CAM_ORTHO] != 0.0:
-        xm = cam[CAM_YMAG] * cam[CAM_ASPECT]
-        ym = cam[CAM_YMAG]
-        ox = cam[CAM_EYE] + sx * xm * cam[CAM_U] + sy * ym * cam[CAM_V]
-        oy = cam[CAM_EYE + 1] + sx * xm * cam[CAM_U + 1] + sy * ym * cam[CAM_V + 1]
-        oz = cam[CAM_EYE + 2] + sx * xm * cam[CAM_U + 2] + sy * ym * cam[CAM_V + 2]
-        return ox, oy, oz, -cam[CAM_W], -cam[CAM_W + 1], -cam[CAM_W + 2]
-    a = sx * cam[CAM_TAN_Y] * cam[CAM_ASPECT]
-    b = sy * cam[CAM_TAN_Y]
-    dx = a * cam[CAM_U] + b * cam[CAM_V] - cam[CAM_W]
-    dy = a * cam[CAM_U + 1] + b * cam[CAM_V + 1] - cam[CAM_W + 1]
-    dz = a * cam[CAM_U + 2] + b * cam[CAM_V + 2] - cam[CAM_W + 2]
+    sx = 2.0 * px / frame[F_WIDTH] - 1.0
+    sy = 1.0 - 2.0 * py / frame[F_HEIGHT]
+    if frame[F_ORTHO] != 0.0:
+        xm = frame[F_YMAG] * frame[F_ASPECT]
+        ym = frame[F_YMAG]
+        ox = frame[F_EYE] + sx * xm * frame[F_U] + sy * ym * frame[F_V]
+        oy = frame[F_EYE + 1] + sx * xm * frame[F_U + 1] + sy * ym * frame[F_V + 1]
+        oz = frame[F_EYE + 2] + sx * xm * frame[F_U + 2] + sy * ym * frame[F_V + 2]
+        return ox, oy, oz, -frame[F_W], -frame[F_W + 1], -frame[F_W + 2]
+    a = sx * frame[F_TAN_Y] * frame[F_ASPECT]
+    b = sy * frame[F_TAN_Y]
+    dx = a * frame[F_U] + b * frame[F_V] - frame[F_W]
+    dy = a * frame[F_U + 1] + b * frame[F_V + 1] - frame[F_W + 1]
+    dz = a * frame[F_U + 2] + b * frame[F_V + 2] - frame[F_W + 2]
     n = math.sqrt(dx * dx + dy * dy + dz * dz)
-    return cam[CAM_EYE], cam[CAM_EYE + 1], cam[CAM_EYE + 2], dx / n, dy / n, dz / n
+    return frame[F_EYE], frame[F_EYE + 1], frame[F_EYE + 2], dx / n, dy / n, dz / n
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def sample_offset(spp, s, seed, pixel):
     """Sub-pixel position of camera sample ``s``: the centre for one sample, else a jittered
     grid warped to the tent filter of radius 1 px (filter importance sampling)."""
     if spp == 1:
         return 0.5, 0.5
-    a, b = stratum(s, spp, random01(seed, pixel, s, 0), random01(seed, pixel, s, 1))
+    h = random_bits(seed, pixel, s, 0)
+    u1 = ((h & 0xFFFF) + 0.5) * (1.0 / 65536.0)
+    u2 = ((h >> 16) + 0.5) * (1.0 / 65536.0)
+    a, b = stratum(s, spp, u1, u2)
     return 0.5 + tent_warp(a), 0.5 + tent_warp(b)
 
 
 # =================================================================================================
 # the image
 # =================================================================================================
-@njit(cache=True, parallel=True)
-def render_image(out, cam, settings, background, lights, env, bvh, geo, mats, ground):
+@njit(cache=True, parallel=True, error_model="numpy")
+def render_image(out, frame, lights, env_map, ground, bvh, scene):
     """Render every pixel into ``out``.
 
     Parameters
     ----------
     out : (h, w, 4) float32, receives premultiplied linear RGBA.
-    cam : (N_CAMERA,) float64; settings : (N_SETTINGS,) int64.
-    background : (2, 3) float64 linear top and bottom colour.
-    lights : (k, N_LIGHT_COLS) float64; env, bvh, geo, mats : see the module docstring.
-    ground : (N_GROUND,) float64.
+    frame : (N_FRAME,) float64 camera, settings, background and SH (``shots.kernels.layout``).
+    lights : (k, N_LIGHT_COLS) float64; env_map : (eh, ew, 3) float32 linear radiance;
+    ground : (N_GROUND,) float64; bvh, scene : see the module docstring.
     """
-    width = settings[C_WIDTH]
-    height = settings[C_HEIGHT]
-    spp = max(settings[C_SAMPLES], 1)
-    seed = settings[C_SEED]
+    width = int(frame[F_WIDTH])
+    height = int(frame[F_HEIGHT])
+    spp = max(int(frame[F_SAMPLES]), 1)
+    seed = int(frame[F_SEED])
     tiles_x = (width + TILE - 1) // TILE
     tiles = tiles_x * ((height + TILE - 1) // TILE)
     for item in prange(WORK_ITEMS):
-        tstack = new_stack()
-        stack = np.empty((STACK_RAYS, N_RAY), np.float64)
-        ray = np.empty(N_RAY, np.float64)
-        surf = np.zeros(N_SURFACE, np.float64)
-        scratch_surf = np.zeros(N_SURFACE, np.float64)
-        uv_sets = np.zeros(4, np.float64)
-        texel = np.zeros(4, np.float64)
-        scratch3 = np.zeros(3, np.float64)
-        acc = np.zeros(4, np.float64)
-        dim = np.zeros(1, np.int64)
+        # scratch owned here; the loops below use borrowed (uncounted) views of everything
+        owned = (new_stack(), np.empty((STACK_RAYS, N_RAY), np.float64),
+                 np.zeros((2, N_SURFACE), np.float64), np.zeros(N_WORK, np.float64))  # fmt: skip
+        tstack, stack, surfs, work = borrow(owned[0]), borrow(owned[1]), borrow(owned[2]), borrow(
+            owned[3]
+        )
+        surf, surf2 = surfs[0], surfs[1]
+        b_frame, b_lights, b_env, b_ground = borrow(frame), borrow(lights), borrow(env_map), borrow(
+            ground
+        )
+        b_bvh = (borrow(bvh[0]), borrow(bvh[1]), borrow(bvh[2]), borrow(bvh[3]))
+        b_scene = (borrow(scene[0]), borrow(scene[1]), borrow(scene[2]), borrow(scene[3]),
+                   borrow(scene[4]))  # fmt: skip
         for tile in range(item, tiles, WORK_ITEMS):
             x0 = (tile % tiles_x) * TILE
             y0 = (tile // tiles_x) * TILE
             for j in range(y0, min(y0 + TILE, height)):
                 for i in range(x0, min(x0 + TILE, width)):
                     pixel = j * width + i
-                    acc[:] = 0.0
+                    for c in range(4):
+                        work[W_ACC + c] = 0.0
                     for s in range(spp):
                         fx, fy = sample_offset(spp, s, seed, pixel)
-                        ox, oy, oz, dx, dy, dz = camera_ray(cam, width, height, i + fx, j + fy)
+                        ox, oy, oz, dx, dy, dz = camera_ray(b_frame, i + fx, j + fy)
                         f = min(max((j + fy) / height, 0.0), 1.0)
-                        bg_r = (1.0 - f) * background[0, 0] + f * background[1, 0]
-                        bg_g = (1.0 - f) * background[0, 1] + f * background[1, 1]
-                        bg_b = (1.0 - f) * background[0, 2] + f * background[1, 2]
-                        dim[0] = 2
-                        trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, settings, lights,
-                                     env, bvh, geo, mats, ground, pixel, s, dim, acc, stack, ray, surf,
-                                     scratch_surf, uv_sets, texel, tstack, scratch3)  # fmt: skip
+                        bg_r = (1.0 - f) * frame[F_BG_TOP] + f * frame[F_BG_BOTTOM]
+                        bg_g = (1.0 - f) * frame[F_BG_TOP + 1] + f * frame[F_BG_BOTTOM + 1]
+                        bg_b = (1.0 - f) * frame[F_BG_TOP + 2] + f * frame[F_BG_BOTTOM + 2]
+                        work[W_DIM] = 1.0  # dimension 0 placed the sample
+                        trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, b_frame, b_lights,
+                                     b_env, b_bvh, b_scene, b_ground, pixel, s, stack, surf,
+                                     surf2, work, tstack)  # fmt: skip
                     for c in range(4):
-                        out[j, i, c] = acc[c] / spp
+                        out[j, i, c] = work[W_ACC + c] / spp
+        owned[3][W_DIM] = 0.0  # the scratch stays owned (alive) until here, past its views

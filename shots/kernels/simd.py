@@ -21,13 +21,37 @@ def _splat(builder, value):
     return builder.shuffle_vector(vec, vec, ir.Constant(ir.VectorType(ir.IntType(32), 4), [0] * 4))
 
 
+def _i64(builder, value):
+    return builder.sext(value, ir.IntType(64)) if value.type.width < 64 else value
+
+
+@intrinsic
+def prefetch_row(typingctx, arr, i):
+    """Hint the CPU to fetch the first 128 bytes of row ``i`` of a C-contiguous array."""
+    sig = types.void(arr, i)
+
+    def codegen(context, builder, signature, args):
+        ary = context.make_array(signature.args[0])(context, builder, value=args[0])
+        stride = cgutils.unpack_tuple(builder, ary.strides)[0]
+        row = builder.gep(builder.bitcast(ary.data, ir.IntType(8).as_pointer()),
+                          [builder.mul(_i64(builder, args[1]), stride)])  # fmt: skip
+        i32 = ir.IntType(32)
+        fnty = ir.FunctionType(ir.VoidType(), [row.type, i32, i32, i32])
+        fn = cgutils.get_or_insert_function(builder.module, fnty, "llvm.prefetch.p0")
+        for offset in (0, 64):  # read, keep in all cache levels, data cache
+            builder.call(fn, [builder.gep(row, [ir.IntType(64)(offset)]), i32(0), i32(3), i32(1)])
+        return context.get_dummy_value()
+
+    return sig, codegen
+
+
 @intrinsic
 def slab4(typingctx, bounds, node, nx, ny, nz, ox, oy, oz, ix, iy, iz, t_lo, t_hi, robust):
     """Entry distances of a ray into the four child boxes of ``node``; +inf where it misses.
 
     Parameters
     ----------
-    bounds : (m, 6, 4) float32 C-contiguous node bounds.
+    bounds : (m, rows, 4) float32 node records with the six bound rows first.
     node : int, node index. nx, ny, nz : int, row of each axis's near plane (0|1, 2|3, 4|5).
     ox .. iz : float32 origin and reciprocal direction. t_lo, t_hi : float32 ray interval.
     robust : float32 factor widening each exit distance (Ize 2013).
@@ -46,16 +70,14 @@ def slab4(typingctx, bounds, node, nx, ny, nz, ox, oy, oz, ix, iy, iz, t_lo, t_h
         inv = ray[3:6]
         t_in, t_out, rob = ray[6], ray[7], ray[8]
         ary = context.make_array(signature.args[0])(context, builder, value=bounds_val)
-        i64 = ir.IntType(64)
-        base = builder.mul(builder.sext(node_val, i64) if node_val.type.width < 64 else node_val,
-                           i64(24))  # fmt: skip
+        node_stride, row_stride = cgutils.unpack_tuple(builder, ary.strides)[:2]
+        node_ptr = builder.gep(builder.bitcast(ary.data, ir.IntType(8).as_pointer()),
+                               [builder.mul(_i64(builder, node_val), node_stride)])  # fmt: skip
         vec_ptr = _F4.as_pointer()
 
         def row(r):
-            r = builder.sext(r, i64) if r.type.width < 64 else r
-            offset = builder.add(base, builder.mul(r, i64(4)))
-            ptr = builder.gep(ary.data, [offset])
-            return builder.load(builder.bitcast(ptr, vec_ptr), align=4)
+            ptr = builder.gep(node_ptr, [builder.mul(_i64(builder, r), row_stride)])
+            return builder.load(builder.bitcast(ptr, vec_ptr), align=4)  # any float32 array
 
         for axis, near in enumerate((nx_val, ny_val, nz_val)):
             far = builder.xor(near, near.type(1))

@@ -10,9 +10,21 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
 from numba import njit
 
+from shots.kernels.layout import (
+    M_SLOTS,
+    SLOT_A,
+    SLOT_SET,
+    SLOT_TEX,
+    SLOT_WIDTH,
+    V_C,
+    V_N,
+    V_T,
+    V_UV0,
+    W_TEXEL,
+    W_UV,
+)
 from shots.kernels.texture import sample_texture
 from shots.scene import (
     ALPHA_BLEND,
@@ -84,35 +96,34 @@ S_CX, S_CY, S_CZ = 35, 36, 37  # clearcoat normal: the interpolated normal witho
 N_SURFACE = 38
 
 
-def new_surface():
-    """A blank surface record (call from Python or a kernel)."""
-    return np.zeros(N_SURFACE, np.float64)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def sample_slot(materials, texels, tex_info, m, slot, work):
+    """Sample material ``m``'s texture in ``slot`` into work[W_TEXEL:+4]; False when it has none.
 
-
-@njit(cache=True)
-def slot_uv(mat_texcoord, mat_uv, m, slot, uv_sets):
-    """The (u, v) a material slot samples: its TEXCOORD set, then KHR_texture_transform."""
-    s = mat_texcoord[m, slot]
-    if s < 0 or s > 1:
-        s = 0
-    u = uv_sets[2 * s]
-    v = uv_sets[2 * s + 1]
-    a = mat_uv[m, slot]
-    return a[0, 0] * u + a[0, 1] * v + a[0, 2], a[1, 0] * u + a[1, 1] * v + a[1, 2]
-
-
-@njit(cache=True)
-def sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m, slot, uv_sets, out):
-    """Sample a material slot's texture into ``out`` (4,); returns False when it has none."""
-    tex = mat_texture[m, slot]
+    Inlined so that the common case, no texture, costs one comparison and no call.
+    """
+    tex = int(materials[m, M_SLOTS + SLOT_WIDTH * slot + SLOT_TEX])
     if tex < 0:
         return False
-    u, v = slot_uv(mat_texcoord, mat_uv, m, slot, uv_sets)
-    sample_texture(texels, tex_info, tex, u, v, out)
+    sample_slot_texture(materials, texels, tex_info, m, slot, tex, work)
     return True
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
+def sample_slot_texture(materials, texels, tex_info, m, slot, tex, work):
+    """Texture ``tex`` at the slot's uv: its TEXCOORD set (work[W_UV:+4] holds both) through its
+    KHR_texture_transform affine map; the texel goes to work[W_TEXEL:+4]."""
+    col = M_SLOTS + SLOT_WIDTH * slot
+    s = 2 * min(max(int(materials[m, col + SLOT_SET]), 0), 1)
+    u = work[W_UV + s]
+    v = work[W_UV + s + 1]
+    a = col + SLOT_A
+    tu = materials[m, a] * u + materials[m, a + 1] * v + materials[m, a + 2]
+    tv = materials[m, a + 3] * u + materials[m, a + 4] * v + materials[m, a + 5]
+    sample_texture(texels, tex_info, tex, tu, tv, work, W_TEXEL)
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def normalize3(x, y, z):
     n = math.sqrt(x * x + y * y + z * z)
     if n <= 0.0:
@@ -120,54 +131,43 @@ def normalize3(x, y, z):
     return x / n, y / n, z / n, n
 
 
-@njit(cache=True)
-def mesh_surface(
-    k, b1, b2, dx, dy, dz,
-    positions, normals, tangents, uvs, colors, triangles, tri_material,
-    params, mat_texture, mat_texcoord, mat_uv, texels, tex_info,
-    surf, uv_sets, texel,
-):  # fmt: skip
+@njit(cache=True, error_model="numpy", _nrt=False)
+def mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_info, surf, work):
     """Fill ``surf`` for a hit on triangle ``k`` at barycentrics (b1, b2) by a ray along d.
 
     Parameters
     ----------
     k : original triangle index; b1, b2 : barycentrics (hit = (1-b1-b2)p0 + b1 p1 + b2 p2).
     dx, dy, dz : ray direction (unit).
-    positions, normals : (v, 3) float32; tangents : (v, 4) float32; uvs : (2, v, 2) float32;
-    colors : (v, 4) float32; triangles : (n, 3) int32; tri_material : (n,) int32.
-    params, mat_texture, mat_texcoord, mat_uv : the material table's arrays.
-    texels, tex_info : the texture atlas.
-    surf : (N_SURFACE,) float64 output record.
-    uv_sets : (4,) float64 scratch; texel : (4,) float64 scratch.
+    verts, faces, materials, texels, tex_info : the packed scene (``shots.kernels.layout``).
+    surf : (N_SURFACE,) float64 output record; work : (N_WORK,) float64 scratch.
 
     Returns
     -------
     Material row index.
     """
-    i0 = triangles[k, 0]
-    i1 = triangles[k, 1]
-    i2 = triangles[k, 2]
+    i0 = faces[k, 0]
+    i1 = faces[k, 1]
+    i2 = faces[k, 2]
     b0 = 1.0 - b1 - b2
-    m = tri_material[k]
+    m = faces[k, 3]
     # position rebuilt from barycentrics (more accurate than o + t·d for the ray offset)
     for a in range(3):
-        surf[S_PX + a] = b0 * positions[i0, a] + b1 * positions[i1, a] + b2 * positions[i2, a]
-    e1x = positions[i1, 0] - positions[i0, 0]
-    e1y = positions[i1, 1] - positions[i0, 1]
-    e1z = positions[i1, 2] - positions[i0, 2]
-    e2x = positions[i2, 0] - positions[i0, 0]
-    e2y = positions[i2, 1] - positions[i0, 1]
-    e2z = positions[i2, 2] - positions[i0, 2]
+        surf[S_PX + a] = b0 * verts[i0, a] + b1 * verts[i1, a] + b2 * verts[i2, a]
+    e1x = verts[i1, 0] - verts[i0, 0]
+    e1y = verts[i1, 1] - verts[i0, 1]
+    e1z = verts[i1, 2] - verts[i0, 2]
+    e2x = verts[i2, 0] - verts[i0, 0]
+    e2y = verts[i2, 1] - verts[i0, 1]
+    e2z = verts[i2, 2] - verts[i0, 2]
     gx, gy, gz, _ = normalize3(e1y * e2z - e1z * e2y, e1z * e2x - e1x * e2z, e1x * e2y - e1y * e2x)
     front = gx * dx + gy * dy + gz * dz < 0.0
-    for s in range(2):
-        for a in range(2):
-            uv_sets[2 * s + a] = (
-                b0 * uvs[s, i0, a] + b1 * uvs[s, i1, a] + b2 * uvs[s, i2, a]
-            )
-    nx = b0 * normals[i0, 0] + b1 * normals[i1, 0] + b2 * normals[i2, 0]
-    ny = b0 * normals[i0, 1] + b1 * normals[i1, 1] + b2 * normals[i2, 1]
-    nz = b0 * normals[i0, 2] + b1 * normals[i1, 2] + b2 * normals[i2, 2]
+    for a in range(4):
+        c = V_UV0 + a
+        work[W_UV + a] = b0 * verts[i0, c] + b1 * verts[i1, c] + b2 * verts[i2, c]
+    nx = b0 * verts[i0, V_N] + b1 * verts[i1, V_N] + b2 * verts[i2, V_N]
+    ny = b0 * verts[i0, V_N + 1] + b1 * verts[i1, V_N + 1] + b2 * verts[i2, V_N + 1]
+    nz = b0 * verts[i0, V_N + 2] + b1 * verts[i1, V_N + 2] + b2 * verts[i2, V_N + 2]
     nx, ny, nz, length = normalize3(nx, ny, nz)
     if length == 0.0:
         nx, ny, nz = gx, gy, gz
@@ -179,116 +179,106 @@ def mesh_surface(
     surf[S_CZ] = nz
 
     # --- base colour and coverage (spec §Materials, "Metallic-Roughness Material", "Alpha") ---
-    br = params[m, P_BASE_R] * (b0 * colors[i0, 0] + b1 * colors[i1, 0] + b2 * colors[i2, 0])
-    bg = params[m, P_BASE_G] * (b0 * colors[i0, 1] + b1 * colors[i1, 1] + b2 * colors[i2, 1])
-    bb = params[m, P_BASE_B] * (b0 * colors[i0, 2] + b1 * colors[i1, 2] + b2 * colors[i2, 2])
-    ba = params[m, P_BASE_A] * (b0 * colors[i0, 3] + b1 * colors[i1, 3] + b2 * colors[i2, 3])
-    if sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m, T_BASE_COLOR,
-                   uv_sets, texel):  # fmt: skip
-        br *= texel[0]
-        bg *= texel[1]
-        bb *= texel[2]
-        ba *= texel[3]
+    c0, c1, c2 = V_C, V_C + 1, V_C + 2
+    br = materials[m, P_BASE_R] * (b0 * verts[i0, c0] + b1 * verts[i1, c0] + b2 * verts[i2, c0])
+    bg = materials[m, P_BASE_G] * (b0 * verts[i0, c1] + b1 * verts[i1, c1] + b2 * verts[i2, c1])
+    bb = materials[m, P_BASE_B] * (b0 * verts[i0, c2] + b1 * verts[i1, c2] + b2 * verts[i2, c2])
+    c3 = V_C + 3
+    ba = materials[m, P_BASE_A] * (b0 * verts[i0, c3] + b1 * verts[i1, c3] + b2 * verts[i2, c3])
+    if sample_slot(materials, texels, tex_info, m, T_BASE_COLOR, work):
+        br *= work[W_TEXEL]
+        bg *= work[W_TEXEL + 1]
+        bb *= work[W_TEXEL + 2]
+        ba *= work[W_TEXEL + 3]
     surf[S_BASE_R] = br
     surf[S_BASE_G] = bg
     surf[S_BASE_B] = bb
-    mode = int(params[m, P_ALPHA_MODE])
+    mode = int(materials[m, P_ALPHA_MODE])
     if mode == ALPHA_MASK:
-        surf[S_OPACITY] = 1.0 if ba >= params[m, P_ALPHA_CUTOFF] else 0.0
+        surf[S_OPACITY] = 1.0 if ba >= materials[m, P_ALPHA_CUTOFF] else 0.0
     elif mode == ALPHA_BLEND:
         surf[S_OPACITY] = min(max(ba, 0.0), 1.0)
     else:
         surf[S_OPACITY] = 1.0
 
     # --- metallic, roughness (B, G), occlusion (R) --------------------------------------------
-    metallic = params[m, P_METALLIC]
-    roughness = params[m, P_ROUGHNESS]
-    if sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m, T_METALLIC_ROUGHNESS,
-                   uv_sets, texel):  # fmt: skip
-        roughness *= texel[1]
-        metallic *= texel[2]
+    metallic = materials[m, P_METALLIC]
+    roughness = materials[m, P_ROUGHNESS]
+    if sample_slot(materials, texels, tex_info, m, T_METALLIC_ROUGHNESS, work):
+        roughness *= work[W_TEXEL + 1]
+        metallic *= work[W_TEXEL + 2]
     surf[S_METALLIC] = min(max(metallic, 0.0), 1.0)
     surf[S_ROUGHNESS] = min(max(roughness, 0.0), 1.0)
     occlusion = 1.0
-    if sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m, T_OCCLUSION,
-                   uv_sets, texel):  # fmt: skip
-        occlusion = 1.0 + params[m, P_OCCLUSION_STRENGTH] * (texel[0] - 1.0)
+    if sample_slot(materials, texels, tex_info, m, T_OCCLUSION, work):
+        occlusion = 1.0 + materials[m, P_OCCLUSION_STRENGTH] * (work[W_TEXEL] - 1.0)
     surf[S_OCCLUSION] = occlusion
 
     # --- emission (factor already × KHR_materials_emissive_strength) ---------------------------
-    er = params[m, P_EMISSIVE_R]
-    eg = params[m, P_EMISSIVE_G]
-    eb = params[m, P_EMISSIVE_B]
-    if er + eg + eb > 0.0 and sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m,
-                                          T_EMISSIVE, uv_sets, texel):  # fmt: skip
-        er *= texel[0]
-        eg *= texel[1]
-        eb *= texel[2]
+    er = materials[m, P_EMISSIVE_R]
+    eg = materials[m, P_EMISSIVE_G]
+    eb = materials[m, P_EMISSIVE_B]
+    if er + eg + eb > 0.0 and sample_slot(materials, texels, tex_info, m, T_EMISSIVE, work):
+        er *= work[W_TEXEL]
+        eg *= work[W_TEXEL + 1]
+        eb *= work[W_TEXEL + 2]
     surf[S_EM_R] = er
     surf[S_EM_G] = eg
     surf[S_EM_B] = eb
 
     # --- extensions: transmission (R), volume thickness (G), clearcoat, specular ---------------
-    transmission = params[m, P_TRANSMISSION]
-    if transmission > 0.0 and sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m,
-                                          T_TRANSMISSION, uv_sets, texel):  # fmt: skip
-        transmission *= texel[0]
+    transmission = materials[m, P_TRANSMISSION]
+    if transmission > 0.0 and sample_slot(materials, texels, tex_info, m, T_TRANSMISSION, work):
+        transmission *= work[W_TEXEL]
     surf[S_TRANSMISSION] = transmission
-    surf[S_IOR] = params[m, P_IOR]
-    thickness = params[m, P_THICKNESS]
-    if thickness > 0.0 and sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m,
-                                       T_THICKNESS, uv_sets, texel):  # fmt: skip
-        thickness *= texel[1]
+    surf[S_IOR] = materials[m, P_IOR]
+    thickness = materials[m, P_THICKNESS]
+    if thickness > 0.0 and sample_slot(materials, texels, tex_info, m, T_THICKNESS, work):
+        thickness *= work[W_TEXEL + 1]
     surf[S_THICKNESS] = thickness
-    surf[S_ATT_DISTANCE] = params[m, P_ATTENUATION_DISTANCE]
-    surf[S_ATT_R] = params[m, P_ATTENUATION_R]
-    surf[S_ATT_G] = params[m, P_ATTENUATION_G]
-    surf[S_ATT_B] = params[m, P_ATTENUATION_B]
-    clearcoat = params[m, P_CLEARCOAT]
-    cc_rough = params[m, P_CLEARCOAT_ROUGHNESS]
+    surf[S_ATT_DISTANCE] = materials[m, P_ATTENUATION_DISTANCE]
+    surf[S_ATT_R] = materials[m, P_ATTENUATION_R]
+    surf[S_ATT_G] = materials[m, P_ATTENUATION_G]
+    surf[S_ATT_B] = materials[m, P_ATTENUATION_B]
+    clearcoat = materials[m, P_CLEARCOAT]
+    cc_rough = materials[m, P_CLEARCOAT_ROUGHNESS]
     if clearcoat > 0.0:
-        if sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m, T_CLEARCOAT,
-                       uv_sets, texel):  # fmt: skip
-            clearcoat *= texel[0]
-        if sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m,
-                       T_CLEARCOAT_ROUGHNESS, uv_sets, texel):  # fmt: skip
-            cc_rough *= texel[1]
+        if sample_slot(materials, texels, tex_info, m, T_CLEARCOAT, work):
+            clearcoat *= work[W_TEXEL]
+        if sample_slot(materials, texels, tex_info, m, T_CLEARCOAT_ROUGHNESS, work):
+            cc_rough *= work[W_TEXEL + 1]
     surf[S_CLEARCOAT] = clearcoat
     surf[S_CLEARCOAT_ROUGHNESS] = min(max(cc_rough, 0.0), 1.0)
-    specular = params[m, P_SPECULAR]
-    if sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m, T_SPECULAR,
-                   uv_sets, texel):  # fmt: skip
-        specular *= texel[3]
-    sr = params[m, P_SPECULAR_R]
-    sg = params[m, P_SPECULAR_G]
-    sb = params[m, P_SPECULAR_B]
-    if sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m, T_SPECULAR_COLOR,
-                   uv_sets, texel):  # fmt: skip
-        sr *= texel[0]
-        sg *= texel[1]
-        sb *= texel[2]
+    specular = materials[m, P_SPECULAR]
+    if sample_slot(materials, texels, tex_info, m, T_SPECULAR, work):
+        specular *= work[W_TEXEL + 3]
+    sr = materials[m, P_SPECULAR_R]
+    sg = materials[m, P_SPECULAR_G]
+    sb = materials[m, P_SPECULAR_B]
+    if sample_slot(materials, texels, tex_info, m, T_SPECULAR_COLOR, work):
+        sr *= work[W_TEXEL]
+        sg *= work[W_TEXEL + 1]
+        sb *= work[W_TEXEL + 2]
     surf[S_SPECULAR] = specular
     surf[S_SPEC_R] = sr
     surf[S_SPEC_G] = sg
     surf[S_SPEC_B] = sb
-    surf[S_UNLIT] = params[m, P_UNLIT]
+    surf[S_UNLIT] = materials[m, P_UNLIT]
 
     # --- normal map (spec §Materials "normalTexture"; tangent w = bitangent sign) --------------
-    if mat_texture[m, T_NORMAL] >= 0:
-        sample_slot(mat_texture, mat_texcoord, mat_uv, texels, tex_info, m, T_NORMAL,
-                    uv_sets, texel)  # fmt: skip
-        scale = params[m, P_NORMAL_SCALE]
-        mx = (2.0 * texel[0] - 1.0) * scale
-        my = (2.0 * texel[1] - 1.0) * scale
-        mz = 2.0 * texel[2] - 1.0
-        tx = b0 * tangents[i0, 0] + b1 * tangents[i1, 0] + b2 * tangents[i2, 0]
-        ty = b0 * tangents[i0, 1] + b1 * tangents[i1, 1] + b2 * tangents[i2, 1]
-        tz = b0 * tangents[i0, 2] + b1 * tangents[i1, 2] + b2 * tangents[i2, 2]
-        sign = tangents[i0, 3]
+    if sample_slot(materials, texels, tex_info, m, T_NORMAL, work):
+        scale = materials[m, P_NORMAL_SCALE]
+        mx = (2.0 * work[W_TEXEL] - 1.0) * scale
+        my = (2.0 * work[W_TEXEL + 1] - 1.0) * scale
+        mz = 2.0 * work[W_TEXEL + 2] - 1.0
+        t0, t1, t2 = V_T, V_T + 1, V_T + 2
+        tx = b0 * verts[i0, t0] + b1 * verts[i1, t0] + b2 * verts[i2, t0]
+        ty = b0 * verts[i0, t1] + b1 * verts[i1, t1] + b2 * verts[i2, t1]
+        tz = b0 * verts[i0, t2] + b1 * verts[i1, t2] + b2 * verts[i2, t2]
+        sign = verts[i0, V_T + 3]
         if tx * tx + ty * ty + tz * tz < 1e-12:
-            tx, ty, tz, sign = uv_tangent(
-                k, positions, uvs, triangles, mat_texcoord[m, T_NORMAL], nx, ny, nz
-            )
+            uv_set = int(materials[m, M_SLOTS + SLOT_WIDTH * T_NORMAL + SLOT_SET])
+            tx, ty, tz, sign = uv_tangent(k, verts, faces, uv_set, nx, ny, nz)
         sign = 1.0 if sign >= 0.0 else -1.0
         # Gram–Schmidt against the interpolated normal, then B = (N × T)·w
         d = tx * nx + ty * ny + tz * nz
@@ -305,7 +295,7 @@ def mesh_surface(
 
     # --- sides (spec §Materials "doubleSided"; KHR_materials_volume ignores it) ---------------
     surf[S_FRONT] = 1.0 if front else 0.0
-    skip = not front and params[m, P_DOUBLE_SIDED] == 0.0 and transmission == 0.0
+    skip = not front and materials[m, P_DOUBLE_SIDED] == 0.0 and transmission == 0.0
     surf[S_SKIP] = 1.0 if skip else 0.0
     if not front:
         gx, gy, gz = -gx, -gy, -gz
@@ -327,7 +317,7 @@ def mesh_surface(
     return m
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def face_viewer(nx, ny, nz, vx, vy, vz):
     """Bend a shading normal that faces away from the viewer until N·V is slightly positive.
 
@@ -345,35 +335,37 @@ def face_viewer(nx, ny, nz, vx, vy, vz):
     return nx, ny, nz
 
 
-@njit(cache=True)
-def uv_tangent(k, positions, uvs, triangles, uv_set, nx, ny, nz):
+@njit(cache=True, error_model="numpy", _nrt=False)
+def uv_tangent(k, verts, faces, uv_set, nx, ny, nz):
     """A per-triangle tangent from the uv parametrisation, for normal maps without TANGENT.
 
     T follows +u. glTF's v runs down the image, so the bitangent (N × T)·w must point toward
     decreasing v (glTF-Sample-Models #174): w is chosen so that B·dP/dv < 0.
     """
-    s = min(max(uv_set, 0), 1)
-    i0 = triangles[k, 0]
-    i1 = triangles[k, 1]
-    i2 = triangles[k, 2]
-    du1 = uvs[s, i1, 0] - uvs[s, i0, 0]
-    dv1 = uvs[s, i1, 1] - uvs[s, i0, 1]
-    du2 = uvs[s, i2, 0] - uvs[s, i0, 0]
-    dv2 = uvs[s, i2, 1] - uvs[s, i0, 1]
+    c = V_UV0 + 2 * min(max(uv_set, 0), 1)
+    i0 = faces[k, 0]
+    i1 = faces[k, 1]
+    i2 = faces[k, 2]
+    du1 = verts[i1, c] - verts[i0, c]
+    dv1 = verts[i1, c + 1] - verts[i0, c + 1]
+    du2 = verts[i2, c] - verts[i0, c]
+    dv2 = verts[i2, c + 1] - verts[i0, c + 1]
     det = du1 * dv2 - du2 * dv1
     if det == 0.0:
         return 0.0, 0.0, 0.0, 1.0
     r = 1.0 / det
-    e1 = (positions[i1, 0] - positions[i0, 0], positions[i1, 1] - positions[i0, 1],
-          positions[i1, 2] - positions[i0, 2])  # fmt: skip
-    e2 = (positions[i2, 0] - positions[i0, 0], positions[i2, 1] - positions[i0, 1],
-          positions[i2, 2] - positions[i0, 2])  # fmt: skip
-    tx = (dv2 * e1[0] - dv1 * e2[0]) * r
-    ty = (dv2 * e1[1] - dv1 * e2[1]) * r
-    tz = (dv2 * e1[2] - dv1 * e2[2]) * r
-    qx = (du1 * e2[0] - du2 * e1[0]) * r  # dP/dv
-    qy = (du1 * e2[1] - du2 * e1[1]) * r
-    qz = (du1 * e2[2] - du2 * e1[2]) * r
+    e1x = verts[i1, 0] - verts[i0, 0]
+    e1y = verts[i1, 1] - verts[i0, 1]
+    e1z = verts[i1, 2] - verts[i0, 2]
+    e2x = verts[i2, 0] - verts[i0, 0]
+    e2y = verts[i2, 1] - verts[i0, 1]
+    e2z = verts[i2, 2] - verts[i0, 2]
+    tx = (dv2 * e1x - dv1 * e2x) * r
+    ty = (dv2 * e1y - dv1 * e2y) * r
+    tz = (dv2 * e1z - dv1 * e2z) * r
+    qx = (du1 * e2x - du2 * e1x) * r  # dP/dv
+    qy = (du1 * e2y - du2 * e1y) * r
+    qz = (du1 * e2z - du2 * e1z) * r
     bx = ny * tz - nz * ty
     by = nz * tx - nx * tz
     bz = nx * ty - ny * tx
@@ -381,9 +373,9 @@ def uv_tangent(k, positions, uvs, triangles, uv_set, nx, ny, nz):
     return tx, ty, tz, w
 
 
-@njit(cache=True)
-def ground_surface(px, py, pz, nx, ny, nz, color, roughness, surf):
-    """Fill ``surf`` for the analytic floor: a rough white-ish dielectric of ``color``."""
+@njit(cache=True, error_model="numpy", _nrt=False)
+def ground_surface(px, py, pz, nx, ny, nz, cr, cg, cb, roughness, surf):
+    """Fill ``surf`` for the analytic floor: a dielectric of linear albedo (cr, cg, cb)."""
     surf[:] = 0.0
     surf[S_PX] = px
     surf[S_PY] = py
@@ -397,9 +389,9 @@ def ground_surface(px, py, pz, nx, ny, nz, color, roughness, surf):
     surf[S_CX] = nx
     surf[S_CY] = ny
     surf[S_CZ] = nz
-    surf[S_BASE_R] = color[0]
-    surf[S_BASE_G] = color[1]
-    surf[S_BASE_B] = color[2]
+    surf[S_BASE_R] = cr
+    surf[S_BASE_G] = cg
+    surf[S_BASE_B] = cb
     surf[S_OPACITY] = 1.0
     surf[S_ROUGHNESS] = roughness
     surf[S_OCCLUSION] = 1.0

@@ -25,7 +25,7 @@ from shots.scene import (
 )
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def wrap_index(i, n, mode):
     """Integer texel index ``i`` folded into [0, n) by a glTF wrap mode (spec §Samplers)."""
     if mode == WRAP_CLAMP:
@@ -37,7 +37,7 @@ def wrap_index(i, n, mode):
     return i % n
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def wrap_coord(x, mode):
     """A texture coordinate folded into [0, 1] by a wrap mode (for tests and nearest lookups)."""
     if mode == WRAP_CLAMP:
@@ -48,9 +48,9 @@ def wrap_coord(x, mode):
     return x - math.floor(x)
 
 
-@njit(cache=True)
-def sample_texture(texels, info, tex, u, v, out):
-    """Filtered RGBA of texture ``tex`` at (u, v), written into ``out`` (4,).
+@njit(cache=True, error_model="numpy", _nrt=False)
+def sample_texture(texels, info, tex, u, v, out, at=0):
+    """Filtered RGBA of texture ``tex`` at (u, v), written into ``out[at : at + 4]``.
 
     Parameters
     ----------
@@ -58,7 +58,7 @@ def sample_texture(texels, info, tex, u, v, out):
     info : (t, N_TEX_INFO) int32 offsets, sizes, wrap modes and filter.
     tex : texture index.
     u, v : texture coordinates after any transform.
-    out : (4,) float64 receives the value.
+    out : float64 array receiving the value at ``at``.
     """
     base = info[tex, TI_OFFSET]
     w = info[tex, TI_WIDTH]
@@ -72,7 +72,7 @@ def sample_texture(texels, info, tex, u, v, out):
         j = wrap_index(int(math.floor(y + 0.5)), h, wt)
         k = base + j * w + i
         for c in range(4):
-            out[c] = texels[k, c]
+            out[at + c] = texels[k, c]
         return
     x0 = math.floor(x)
     y0 = math.floor(y)
@@ -89,10 +89,10 @@ def sample_texture(texels, info, tex, u, v, out):
     for c in range(4):
         top = texels[k00, c] * (1.0 - fx) + texels[k10, c] * fx
         bottom = texels[k01, c] * (1.0 - fx) + texels[k11, c] * fx
-        out[c] = top * (1.0 - fy) + bottom * fy
+        out[at + c] = top * (1.0 - fy) + bottom * fy
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def equirect_uv(dx, dy, dz, rotation):
     """Equirectangular (u, v) of a unit direction; +Y up, v = 0 at the zenith.
 
@@ -106,11 +106,11 @@ def equirect_uv(dx, dy, dz, rotation):
     return u, v
 
 
-@njit(cache=True)
-def sample_equirect(image, dx, dy, dz, rotation, scale, out):
+@njit(cache=True, error_model="numpy", _nrt=False)
+def sample_equirect(image, dx, dy, dz, rotation, scale, out, at=0):
     """Bilinear radiance of an equirectangular map (h, w, 3) along a direction, × ``scale``.
 
-    Wraps around in u and clamps at the poles. Writes (3,) into ``out``.
+    Wraps around in u and clamps at the poles. Writes (3,) into ``out[at : at + 3]``.
     """
     h = image.shape[0]
     w = image.shape[1]
@@ -128,4 +128,4 @@ def sample_equirect(image, dx, dy, dz, rotation, scale, out):
     for c in range(3):
         top = image[j0, i0, c] * (1.0 - fx) + image[j0, i1, c] * fx
         bottom = image[j1, i0, c] * (1.0 - fx) + image[j1, i1, c] * fx
-        out[c] = scale * (top * (1.0 - fy) + bottom * fy)
+        out[at + c] = scale * (top * (1.0 - fy) + bottom * fy)

@@ -18,11 +18,16 @@ Single-ray device functions, callable from any numba kernel (including inside it
         u, v barycentrics with hit point (1-u-v)·p0 + u·p1 + v·p2 in the original vertex order.
     any_hit_one returns True when any triangle lies within [t_min, t_max] (shadow rays).
 
-Traversal is ordered (nearest child first, farther children on a small fixed stack with their
-entry distance so they are skipped once a closer hit is known). The slab test is the robust one
-of Ize (JCGT 2(2), 2013): the exit distance is widened by 2·gamma(3) float32 ulps so rounding can
-never cull a box a ray touches. Batched kernels split rays into fixed chunks (results do not
-depend on the number of threads: every ray is computed alone and in the same way).
+Batches (``closest_hits``, ``any_hits``, behind ``shots.accel``) split the rays into fixed chunks
+over threads and keep LANES rays per thread in flight (see "batches" below); they return exactly
+what the single-ray functions return, independent of the number of threads.
+
+Traversal is ordered: nearest child first, farther children on a small fixed stack with their
+entry distance, so they are skipped once a closer hit is known. The four child boxes of a node
+are tested at once (``simd.slab4``) with the robust slab test of Ize (JCGT 2(2), 2013; as in
+Pharr, Jakob & Humphreys, PBR 3rd ed. §3.9.2): exit distances are widened by 1 + 2·gamma(3) so
+float32 rounding never culls a box the ray touches. Data-dependent choices are written as selects
+rather than branches where that is cheap: mispredicted branches dominate incoherent traversal.
 """
 
 from __future__ import annotations
@@ -31,44 +36,29 @@ import numpy as np
 from numba import njit, prange
 
 from shots.kernels.bvh_build import LEAF_BITS, MAX_LEAF, WIDTH
-from shots.kernels.simd import slab4
+from shots.kernels.simd import prefetch_row, slab4
 from shots.kernels.triangle import intersect_triangle, ray_shear
 
 assert WIDTH == 4  # the slab tests below are written out for four children
 
-STACK_SIZE = 512
-CHUNK = 64  # rays per parallel work item
+# Stack pairs per ray: at most 3 per tree level, and the build bounds the depth by
+# SAH_MAX_DEPTH + log2(triangles) + 1 <= 92 (bvh_build), so 3·92 + 3 fit.
+STACK_SIZE = 320
+CHUNK = 1024  # rays per parallel work item
+LANES = 16  # rays in flight per thread in the batch kernels
+LANE_STACK = 2 * STACK_SIZE  # stack entries per lane
 # Ize 2013: 1 + 2·gamma(3), gamma(n) = n·eps / (1 - n·eps), eps = 2^-24 (float32 boxes).
 _EPS32 = 2.0**-24
 ROBUST = np.float32(1.0 + 2.0 * (3.0 * _EPS32) / (1.0 - 3.0 * _EPS32))
 INF32 = np.float32(np.inf)
+ROOT = 0
+NONE = -1  # "no node": the link of an empty child slot, which traversal never enters
 
 
 @njit(cache=True)
 def new_stack():
     """Scratch for one thread's traversals: (2·STACK_SIZE,) float64 of (entry t, link) pairs."""
     return np.empty(2 * STACK_SIZE, np.float64)
-
-
-@njit(cache=True, inline="always")
-def slab(node_bounds, node, j, nx, ny, nz, ox, oy, oz, ix, iy, iz, t_lo, t_hi):
-    """Entry distance of the ray into child ``j``'s box (float32), or +inf when it misses.
-
-    A NaN (0·inf: an axis-parallel ray starting on a slab plane) leaves the interval unchanged,
-    so each comparison has the possible NaN on the left."""
-    lo_x = (node_bounds[node, nx, j] - ox) * ix
-    hi_x = (node_bounds[node, nx ^ 1, j] - ox) * ix * ROBUST
-    lo_y = (node_bounds[node, ny, j] - oy) * iy
-    hi_y = (node_bounds[node, ny ^ 1, j] - oy) * iy * ROBUST
-    lo_z = (node_bounds[node, nz, j] - oz) * iz
-    hi_z = (node_bounds[node, nz ^ 1, j] - oz) * iz * ROBUST
-    t_in = lo_x if lo_x > t_lo else t_lo
-    t_in = lo_y if lo_y > t_in else t_in
-    t_in = lo_z if lo_z > t_in else t_in
-    t_out = hi_x if hi_x < t_hi else t_hi
-    t_out = hi_y if hi_y < t_out else t_out
-    t_out = hi_z if hi_z < t_out else t_out
-    return t_in if t_in <= t_out else INF32
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -86,69 +76,134 @@ def sort2(ta, la, tb, lb):
     return (tb if swap else ta), (lb if swap else la), (ta if swap else tb), (la if swap else lb)
 
 
-@njit(cache=True, error_model="numpy")
-def closest_hit_one(
-    node_bounds, node_links, tri_verts, tri_ids, ox, oy, oz, dx, dy, dz, t_min, t_max, stack
-):
-    """Nearest hit along one ray; see the module docstring for arguments and returns."""
-    fx, fy, fz = np.float32(ox), np.float32(oy), np.float32(oz)
+@njit(cache=True, inline="always")
+def visit_ordered(node_bounds, node_links, node, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
+                  stack, sp):  # fmt: skip
+    """Slab-test the four children of an inner node, sort them by entry distance (misses sort
+    last, at +inf), push the hit ones but the nearest onto ``stack`` far to near as (t, link)
+    pairs, and return (nearest hit child or NONE, new stack top)."""
+    t0, t1, t2, t3 = slab4(node_bounds, node, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
+                           ROBUST)  # fmt: skip
+    n_hit = int(t0 < INF32) + int(t1 < INF32) + int(t2 < INF32) + int(t3 < INF32)
+    if n_hit == 0:
+        return NONE, sp
+    l0, l1 = node_links[node, 0], node_links[node, 1]
+    l2, l3 = node_links[node, 2], node_links[node, 3]
+    # Sorting network for four elements.
+    t0, l0, t1, l1 = sort2(t0, l0, t1, l1)
+    t2, l2, t3, l3 = sort2(t2, l2, t3, l3)
+    t0, l0, t2, l2 = sort2(t0, l0, t2, l2)
+    t1, l1, t3, l3 = sort2(t1, l1, t3, l3)
+    t1, l1, t2, l2 = sort2(t1, l1, t2, l2)
+    stack[sp], stack[sp + 1] = t3, l3
+    sp += 2 * int(n_hit > 3)
+    stack[sp], stack[sp + 1] = t2, l2
+    sp += 2 * int(n_hit > 2)
+    stack[sp], stack[sp + 1] = t1, l1
+    sp += 2 * int(n_hit > 1)
+    return l0, sp
+
+
+@njit(cache=True, inline="always")
+def pop_ordered(stack, bottom, sp, t_hi):
+    """Pop the next (t, link) entry above ``bottom`` whose entry distance is still <= t_hi;
+    returns (link or NONE, new stack top)."""
+    while sp > bottom:
+        sp -= 2
+        if stack[sp] <= t_hi:
+            return int(stack[sp + 1]), sp
+    return NONE, sp
+
+
+@njit(cache=True, inline="always")
+def visit_leaf_closest(tri_verts, link, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min, t_best,
+                       u_best, v_best, k_best):  # fmt: skip
+    """Test the triangles of a leaf; returns the updated (t, u, v, leaf-order index) best hit."""
+    code = ~link
+    start = code >> LEAF_BITS
+    for k in range(start, start + (code & MAX_LEAF)):
+        t, u, v = intersect_triangle(tri_verts, k, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min,
+                                     t_best)  # fmt: skip
+        # Closer, or the first hit exactly at t_max.
+        better = (t < t_best) | ((k_best < 0) & (t == t_best) & (t < np.inf))
+        t_best = t if better else t_best
+        u_best = u if better else u_best
+        v_best = v if better else v_best
+        k_best = k if better else k_best
+    return t_best, u_best, v_best, k_best
+
+
+@njit(cache=True, inline="always")
+def visit_any(node_bounds, node_links, node, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
+              stack, sp):  # fmt: skip
+    """Push every child of an inner node that the ray enters (any hit will do: no order)."""
+    t0, t1, t2, t3 = slab4(node_bounds, node, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
+                           ROBUST)  # fmt: skip
+    stack[sp] = node_links[node, 0]
+    sp += int(t0 < INF32)
+    stack[sp] = node_links[node, 1]
+    sp += int(t1 < INF32)
+    stack[sp] = node_links[node, 2]
+    sp += int(t2 < INF32)
+    stack[sp] = node_links[node, 3]
+    sp += int(t3 < INF32)
+    return sp
+
+
+@njit(cache=True, inline="always")
+def leaf_occludes(tri_verts, link, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min, t_max):
+    """True when a triangle of the leaf lies within [t_min, t_max]."""
+    code = ~link
+    start = code >> LEAF_BITS
+    for k in range(start, start + (code & MAX_LEAF)):
+        t, u, v = intersect_triangle(tri_verts, k, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min,
+                                     t_max)  # fmt: skip
+        if t < np.inf:
+            return True
+    return False
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def prepare_ray(ox, oy, oz, dx, dy, dz):
+    """Everything traversal needs per ray: float32 origin and reciprocal direction with near-plane
+    rows for the boxes, float64 shear constants for the triangles."""
     ix, iy, iz, nx, ny, nz = ray_setup(np.float32(dx), np.float32(dy), np.float32(dz))
     kx, ky, kz, okx, oky, okz, sx, sy, sz = ray_shear(
         np.float64(ox), np.float64(oy), np.float64(oz),
         np.float64(dx), np.float64(dy), np.float64(dz),
     )  # fmt: skip
-    t_lo = np.float32(t_min)
+    return (np.float32(ox), np.float32(oy), np.float32(oz), ix, iy, iz, nx, ny, nz,
+            kx, ky, kz, okx, oky, okz, sx, sy, sz)  # fmt: skip
+
+
+@njit(cache=True, error_model="numpy")
+def closest_hit_one(
+    node_bounds, node_links, tri_verts, tri_ids, ox, oy, oz, dx, dy, dz, t_min, t_max, stack
+):
+    """Nearest hit along one ray; see the module docstring for arguments and returns."""
+    fx, fy, fz, ix, iy, iz, nx, ny, nz, kx, ky, kz, okx, oky, okz, sx, sy, sz = prepare_ray(
+        ox, oy, oz, dx, dy, dz
+    )
+    t_lo, t_min = np.float32(t_min), np.float64(t_min)
     t_best, u_best, v_best, k_best = np.float64(t_max), 0.0, 0.0, -1
     t_hi = np.float32(t_best) * ROBUST
-    sp = 0
-    link = 0
+    link, sp = visit_ordered(node_bounds, node_links, 0, nx, ny, nz, fx, fy, fz, ix, iy, iz,
+                             t_lo, t_hi, stack, 0)  # fmt: skip
     while True:
-        if link >= 0:
-            # Inner node: slab-test the four children, sort them (misses sort last at +inf),
-            # continue with the nearest and push the other hits far to near.
-            t0, t1, t2, t3 = slab4(node_bounds, link, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
-                                   ROBUST)  # fmt: skip
-            n_hit = int(t0 < INF32) + int(t1 < INF32) + int(t2 < INF32) + int(t3 < INF32)
-            if n_hit > 0:
-                l0, l1 = node_links[link, 0], node_links[link, 1]
-                l2, l3 = node_links[link, 2], node_links[link, 3]
-                # Sorting network for four elements.
-                t0, l0, t1, l1 = sort2(t0, l0, t1, l1)
-                t2, l2, t3, l3 = sort2(t2, l2, t3, l3)
-                t0, l0, t2, l2 = sort2(t0, l0, t2, l2)
-                t1, l1, t3, l3 = sort2(t1, l1, t3, l3)
-                t1, l1, t2, l2 = sort2(t1, l1, t2, l2)
-                stack[sp], stack[sp + 1] = t3, l3
-                sp += 2 * int(n_hit > 3)
-                stack[sp], stack[sp + 1] = t2, l2
-                sp += 2 * int(n_hit > 2)
-                stack[sp], stack[sp + 1] = t1, l1
-                sp += 2 * int(n_hit > 1)
-                link = l0
-                continue
-        else:
-            code = ~link
-            start = code >> LEAF_BITS
-            for k in range(start, start + (code & MAX_LEAF)):
-                t, u, v = intersect_triangle(
-                    tri_verts, k, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min, t_best
-                )
-                # Closer, or the first hit exactly at t_max.
-                better = (t < t_best) | ((k_best < 0) & (t == t_best) & (t < np.inf))
-                t_best = t if better else t_best
-                u_best = u if better else u_best
-                v_best = v if better else v_best
-                k_best = k if better else k_best
-            t_hi = np.float32(t_best) * ROBUST
-        # Pop the next child that may still hold a closer hit.
-        link = 0
-        while sp > 0:
-            sp -= 2
-            if stack[sp] <= t_hi:
-                link = int(stack[sp + 1])
+        if link == NONE:
+            link, sp = pop_ordered(stack, 0, sp, t_hi)
+            if link == NONE:
                 break
-        if link == 0:
-            break
+        elif link >= 0:
+            link, sp = visit_ordered(node_bounds, node_links, link, nx, ny, nz, fx, fy, fz, ix, iy,
+                                     iz, t_lo, t_hi, stack, sp)  # fmt: skip
+        else:
+            t_best, u_best, v_best, k_best = visit_leaf_closest(
+                tri_verts, link, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min, t_best, u_best,
+                v_best, k_best,
+            )  # fmt: skip
+            t_hi = np.float32(t_best) * ROBUST
+            link = NONE
     if k_best < 0:
         return np.inf, -1, 0.0, 0.0
     return t_best, tri_ids[k_best], u_best, v_best
@@ -157,42 +212,177 @@ def closest_hit_one(
 @njit(cache=True, error_model="numpy")
 def any_hit_one(node_bounds, node_links, tri_verts, ox, oy, oz, dx, dy, dz, t_min, t_max, stack):
     """True when any triangle lies within [t_min, t_max] along the ray (shadow rays)."""
-    fx, fy, fz = np.float32(ox), np.float32(oy), np.float32(oz)
-    ix, iy, iz, nx, ny, nz = ray_setup(np.float32(dx), np.float32(dy), np.float32(dz))
-    kx, ky, kz, okx, oky, okz, sx, sy, sz = ray_shear(
-        np.float64(ox), np.float64(oy), np.float64(oz),
-        np.float64(dx), np.float64(dy), np.float64(dz),
-    )  # fmt: skip
-    t_lo = np.float32(t_min)
-    t_hi = np.float32(t_max) * ROBUST
-    sp = 0
-    link = 0
-    while True:
-        if link >= 0:
-            # Push every child the ray enters (no ordering: any hit will do).
-            t0, t1, t2, t3 = slab4(node_bounds, link, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
-                                   ROBUST)  # fmt: skip
-            stack[sp] = node_links[link, 0]
-            sp += int(t0 < INF32)
-            stack[sp] = node_links[link, 1]
-            sp += int(t1 < INF32)
-            stack[sp] = node_links[link, 2]
-            sp += int(t2 < INF32)
-            stack[sp] = node_links[link, 3]
-            sp += int(t3 < INF32)
-        else:
-            code = ~link
-            start = code >> LEAF_BITS
-            for k in range(start, start + (code & MAX_LEAF)):
-                t, u, v = intersect_triangle(
-                    tri_verts, k, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min, t_max
-                )
-                if t < np.inf:
-                    return True
-        if sp == 0:
-            return False
+    fx, fy, fz, ix, iy, iz, nx, ny, nz, kx, ky, kz, okx, oky, okz, sx, sy, sz = prepare_ray(
+        ox, oy, oz, dx, dy, dz
+    )
+    t_lo, t_hi = np.float32(t_min), np.float32(t_max) * ROBUST
+    t_min, t_max = np.float64(t_min), np.float64(t_max)
+    sp = visit_any(node_bounds, node_links, 0, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
+                   stack, 0)  # fmt: skip
+    while sp > 0:
         sp -= 1
         link = int(stack[sp])
+        if link > 0:
+            sp = visit_any(node_bounds, node_links, link, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo,
+                           t_hi, stack, sp)  # fmt: skip
+        elif leaf_occludes(tri_verts, link, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min, t_max):
+            return True
+    return False
+
+
+# --- batches: several rays per thread in flight ------------------------------------------------
+# One ray's traversal is a chain of dependent memory reads. A batch kernel keeps LANES rays per
+# thread in flight and advances them in turn, one node or leaf per step, prefetching what each
+# ray reads next, so cache misses of different rays overlap. Every ray still runs the very same
+# arithmetic as closest_hit_one / any_hit_one, so results are identical bit for bit.
+
+# Lane state: float32 columns, float64 columns, int64 columns.
+F_OX, F_OY, F_OZ, F_IX, F_IY, F_IZ, F_TLO, F_THI = range(8)
+D_OKX, D_OKY, D_OKZ, D_SX, D_SY, D_SZ, D_TMIN, D_TMAX, D_T, D_U, D_V = range(11)
+I_RAY, I_LINK, I_SP, I_K, I_NX, I_NY, I_NZ, I_KX, I_KY, I_KZ = range(10)
+
+
+@njit(cache=True, inline="always")
+def prefetch_link(node_bounds, tri_verts, link):
+    """Start fetching what visiting ``link`` will read (a node record or a leaf's triangles)."""
+    prefetch_row(node_bounds, max(link, 0))
+    prefetch_row(tri_verts, max((~link) >> LEAF_BITS, 0))
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def start_lane(lane, i, origins, directions, t_min, t_max, fs, ds, ls):
+    """Load ray ``i`` into ``lane``; its traversal starts at the root."""
+    fx, fy, fz, ix, iy, iz, nx, ny, nz, kx, ky, kz, okx, oky, okz, sx, sy, sz = prepare_ray(
+        origins[i, 0], origins[i, 1], origins[i, 2],
+        directions[i, 0], directions[i, 1], directions[i, 2],
+    )  # fmt: skip
+    fs[lane, F_OX], fs[lane, F_OY], fs[lane, F_OZ] = fx, fy, fz
+    fs[lane, F_IX], fs[lane, F_IY], fs[lane, F_IZ] = ix, iy, iz
+    fs[lane, F_TLO] = np.float32(t_min[i])
+    fs[lane, F_THI] = np.float32(t_max[i]) * ROBUST
+    ds[lane, D_OKX], ds[lane, D_OKY], ds[lane, D_OKZ] = okx, oky, okz
+    ds[lane, D_SX], ds[lane, D_SY], ds[lane, D_SZ] = sx, sy, sz
+    ds[lane, D_TMIN], ds[lane, D_TMAX] = t_min[i], t_max[i]
+    ds[lane, D_T], ds[lane, D_U], ds[lane, D_V] = np.float64(t_max[i]), 0.0, 0.0
+    ls[lane, I_RAY], ls[lane, I_LINK], ls[lane, I_SP], ls[lane, I_K] = i, ROOT, lane * LANE_STACK, -1
+    ls[lane, I_NX], ls[lane, I_NY], ls[lane, I_NZ] = nx, ny, nz
+    ls[lane, I_KX], ls[lane, I_KY], ls[lane, I_KZ] = kx, ky, kz
+
+
+@njit(cache=True, error_model="numpy")
+def closest_hits_range(node_bounds, node_links, tri_verts, tri_ids, origins, directions, t_min,
+                       t_max, first, last, t_out, tri_out, u_out, v_out):  # fmt: skip
+    """Closest hits of rays first..last-1, LANES at a time (see above)."""
+    stack = np.empty(LANES * LANE_STACK, np.float64)
+    fs = np.empty((LANES, 8), np.float32)
+    ds = np.empty((LANES, 11), np.float64)
+    ls = np.empty((LANES, 10), np.int64)
+    following = first
+    for lane in range(LANES):
+        ls[lane, I_RAY] = -1
+        if following < last:
+            start_lane(lane, following, origins, directions, t_min, t_max, fs, ds, ls)
+            following += 1
+    active = min(LANES, last - first)
+    while active > 0:
+        for lane in range(LANES):
+            i = ls[lane, I_RAY]
+            if i < 0:
+                continue
+            link, sp, t_hi = ls[lane, I_LINK], ls[lane, I_SP], fs[lane, F_THI]
+            if link == NONE:
+                link, sp = pop_ordered(stack, lane * LANE_STACK, sp, t_hi)
+                if link == NONE:  # done: write the result, take the next ray
+                    k = ls[lane, I_K]
+                    t_out[i] = ds[lane, D_T] if k >= 0 else np.inf
+                    tri_out[i] = tri_ids[k] if k >= 0 else -1
+                    u_out[i] = ds[lane, D_U] if k >= 0 else 0.0
+                    v_out[i] = ds[lane, D_V] if k >= 0 else 0.0
+                    if following < last:
+                        start_lane(lane, following, origins, directions, t_min, t_max, fs, ds, ls)
+                        following += 1
+                        prefetch_row(node_bounds, ROOT)
+                    else:
+                        ls[lane, I_RAY] = -1
+                        active -= 1
+                    continue
+            if link >= 0:  # ROOT or an inner node
+                link, sp = visit_ordered(
+                    node_bounds, node_links, link, ls[lane, I_NX], ls[lane, I_NY], ls[lane, I_NZ],
+                    fs[lane, F_OX], fs[lane, F_OY], fs[lane, F_OZ], fs[lane, F_IX],
+                    fs[lane, F_IY], fs[lane, F_IZ], fs[lane, F_TLO], t_hi, stack, sp,
+                )  # fmt: skip
+            else:
+                t, u, v, k = visit_leaf_closest(
+                    tri_verts, link, ls[lane, I_KX], ls[lane, I_KY], ls[lane, I_KZ],
+                    ds[lane, D_OKX], ds[lane, D_OKY], ds[lane, D_OKZ], ds[lane, D_SX],
+                    ds[lane, D_SY], ds[lane, D_SZ], ds[lane, D_TMIN], ds[lane, D_T],
+                    ds[lane, D_U], ds[lane, D_V], ls[lane, I_K],
+                )  # fmt: skip
+                ds[lane, D_T], ds[lane, D_U], ds[lane, D_V], ls[lane, I_K] = t, u, v, k
+                fs[lane, F_THI] = np.float32(t) * ROBUST
+                link = NONE
+            ls[lane, I_LINK], ls[lane, I_SP] = link, sp
+            if link == NONE and sp > lane * LANE_STACK:
+                prefetch_link(node_bounds, tri_verts, int(stack[sp - 1]))
+            else:
+                prefetch_link(node_bounds, tri_verts, link)
+
+
+@njit(cache=True, error_model="numpy")
+def any_hits_range(node_bounds, node_links, tri_verts, origins, directions, t_min, t_max, first,
+                   last, out):  # fmt: skip
+    """Occlusion of rays first..last-1, LANES at a time (see above)."""
+    stack = np.empty(LANES * LANE_STACK, np.float64)
+    fs = np.empty((LANES, 8), np.float32)
+    ds = np.empty((LANES, 11), np.float64)
+    ls = np.empty((LANES, 10), np.int64)
+    following = first
+    for lane in range(LANES):
+        ls[lane, I_RAY] = -1
+        if following < last:
+            start_lane(lane, following, origins, directions, t_min, t_max, fs, ds, ls)
+            following += 1
+    active = min(LANES, last - first)
+    while active > 0:
+        for lane in range(LANES):
+            i = ls[lane, I_RAY]
+            if i < 0:
+                continue
+            link, sp, bottom = ls[lane, I_LINK], ls[lane, I_SP], lane * LANE_STACK
+            occluded = False
+            if link == ROOT:
+                sp = visit_any(node_bounds, node_links, ROOT, ls[lane, I_NX], ls[lane, I_NY],
+                               ls[lane, I_NZ], fs[lane, F_OX], fs[lane, F_OY], fs[lane, F_OZ],
+                               fs[lane, F_IX], fs[lane, F_IY], fs[lane, F_IZ], fs[lane, F_TLO],
+                               fs[lane, F_THI], stack, sp)  # fmt: skip
+                ls[lane, I_LINK] = NONE
+            elif sp > bottom:
+                sp -= 1
+                link = int(stack[sp])
+                if link > 0:
+                    sp = visit_any(node_bounds, node_links, link, ls[lane, I_NX], ls[lane, I_NY],
+                                   ls[lane, I_NZ], fs[lane, F_OX], fs[lane, F_OY], fs[lane, F_OZ],
+                                   fs[lane, F_IX], fs[lane, F_IY], fs[lane, F_IZ],
+                                   fs[lane, F_TLO], fs[lane, F_THI], stack, sp)  # fmt: skip
+                else:
+                    occluded = leaf_occludes(
+                        tri_verts, link, ls[lane, I_KX], ls[lane, I_KY], ls[lane, I_KZ],
+                        ds[lane, D_OKX], ds[lane, D_OKY], ds[lane, D_OKZ], ds[lane, D_SX],
+                        ds[lane, D_SY], ds[lane, D_SZ], ds[lane, D_TMIN], ds[lane, D_TMAX],
+                    )  # fmt: skip
+            if occluded or sp == bottom:  # done: write the result, take the next ray
+                out[i] = occluded
+                if following < last:
+                    start_lane(lane, following, origins, directions, t_min, t_max, fs, ds, ls)
+                    following += 1
+                    prefetch_row(node_bounds, ROOT)
+                else:
+                    ls[lane, I_RAY] = -1
+                    active -= 1
+                continue
+            ls[lane, I_SP] = sp
+            prefetch_link(node_bounds, tri_verts, int(stack[sp - 1]))
 
 
 @njit(cache=True, parallel=True, error_model="numpy")
@@ -207,15 +397,9 @@ def closest_hits(node_bounds, node_links, tri_verts, tri_ids, origins, direction
     u_out = np.empty(r, np.float32)
     v_out = np.empty(r, np.float32)
     for chunk in prange((r + CHUNK - 1) // CHUNK):
-        stack = new_stack()
-        for i in range(chunk * CHUNK, min(r, (chunk + 1) * CHUNK)):
-            t, k, u, v = closest_hit_one(
-                node_bounds, node_links, tri_verts, tri_ids,
-                origins[i, 0], origins[i, 1], origins[i, 2],
-                directions[i, 0], directions[i, 1], directions[i, 2],
-                t_min[i], t_max[i], stack,
-            )  # fmt: skip
-            t_out[i], tri_out[i], u_out[i], v_out[i] = t, k, u, v
+        closest_hits_range(node_bounds, node_links, tri_verts, tri_ids, origins, directions,
+                           t_min, t_max, chunk * CHUNK, min(r, (chunk + 1) * CHUNK), t_out,
+                           tri_out, u_out, v_out)  # fmt: skip
     return t_out, tri_out, u_out, v_out
 
 
@@ -225,12 +409,6 @@ def any_hits(node_bounds, node_links, tri_verts, origins, directions, t_min, t_m
     r = origins.shape[0]
     out = np.empty(r, np.bool_)
     for chunk in prange((r + CHUNK - 1) // CHUNK):
-        stack = new_stack()
-        for i in range(chunk * CHUNK, min(r, (chunk + 1) * CHUNK)):
-            out[i] = any_hit_one(
-                node_bounds, node_links, tri_verts,
-                origins[i, 0], origins[i, 1], origins[i, 2],
-                directions[i, 0], directions[i, 1], directions[i, 2],
-                t_min[i], t_max[i], stack,
-            )  # fmt: skip
+        any_hits_range(node_bounds, node_links, tri_verts, origins, directions, t_min, t_max,
+                       chunk * CHUNK, min(r, (chunk + 1) * CHUNK), out)  # fmt: skip
     return out

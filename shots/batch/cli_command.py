@@ -1,0 +1,71 @@
+"""The ``shots batch`` command, an adapter over ``run_batch``; register it with
+``app.command()(batch)`` in ``shots.cli``.
+
+Exit codes: 0 all models done, 1 some model failed (the summary says which and why), 2 the
+batch could not start (bad source, preset, template or option).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+from rich.console import Console
+
+from shots.errors import ShotsError
+
+err = Console(stderr=True)
+
+
+def batch(
+    source: Annotated[Path, typer.Argument(
+        help="A folder of .gltf/.glb models (searched recursively) or a text file listing "
+             "one model path per line, relative to the list file.")],
+    preset: Annotated[str, typer.Option(
+        "--preset", "-p", help="Built-in preset name or a TOML preset file.")],
+    output: Annotated[Path, typer.Option("--output", "-o", help="Output folder.")],
+    variants: Annotated[str, typer.Option(
+        "--variants", help="'default' (the models' own materials) or 'all' "
+                           "(every KHR_materials_variants variant).")] = "default",
+    force: Annotated[bool, typer.Option(
+        "--force", help="Render every frame, even those that are up to date.")] = False,
+    workers: Annotated[int | None, typer.Option(
+        "--workers", "-j", help="Local worker processes (default: one per core).")] = None,
+    cluster: Annotated[str | None, typer.Option(
+        "--cluster", help="Address of a Dask distributed scheduler to run on.")] = None,
+    template: Annotated[str | None, typer.Option(
+        "--template", help="Frame path template; fields {model} {variant} {shot} {frame} "
+                           "{size}. Default: {model}/{variant}/{shot}/{frame}.png")] = None,
+    bits: Annotated[int, typer.Option("--bits", help="PNG bit depth: 8 or 16.")] = 8,
+    exr: Annotated[bool, typer.Option(
+        "--exr", help="Also write linear premultiplied EXR files (needs OpenEXR).")] = False,
+    animations: Annotated[str, typer.Option(
+        "--animations", help="Formats for moving shots, comma-separated (gif,webp,mp4), "
+                             "or 'none'.")] = "gif,webp,mp4",
+    fps: Annotated[float, typer.Option("--fps", help="Animation frame rate.")] = 12.0,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bars.")] = False,
+    log_json: Annotated[Path | None, typer.Option(
+        "--log-json", help="Write one JSON event per line to this file.")] = None,
+) -> None:
+    """Render a catalog: every model × variant × shot of a preset, only what changed."""
+    from shots.batch.progress import print_summary
+    from shots.batch.run import run_batch
+
+    formats = tuple(a.strip() for a in animations.split(",") if a.strip() and a != "none")
+    try:
+        summary = run_batch(
+            source, preset, output, variants=variants, force=force, workers=workers,
+            cluster=cluster, quiet=quiet, log_json=log_json, template=template, bits=bits,
+            exr=exr, animations=formats, fps=fps, console=err,
+        )
+    except ShotsError as exc:
+        err.print(f"[bold red]error:[/] {exc}", highlight=False, soft_wrap=True)
+        raise typer.Exit(2) from None
+    if quiet:
+        for listed_as, reason in summary.failures:
+            err.print(f"[bold red]failed:[/] {listed_as}: {reason}", highlight=False,
+                      soft_wrap=True)
+    else:
+        print_summary(summary, err)
+    raise typer.Exit(summary.exit_code)

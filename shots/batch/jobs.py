@@ -1,0 +1,213 @@
+"""What a batch has to do: model × variant × shot × frame, the hashes that say what changed,
+and the chunks of frames handed to workers.
+
+A frame's key is the SHA-256 of everything its pixels depend on: the model's inputs (its file
+and the external buffers and images it names), the resolved preset, the renderer version and
+the frame's identity (variant, shot, index) and PNG bit depth. Equal keys mean equal bytes,
+because rendering is deterministic given the frame's seed.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import struct
+from dataclasses import dataclass, field
+from pathlib import Path
+from urllib.parse import unquote, urlsplit
+
+from shots.presets import FileCameraShot, Preset, ViewsShot
+
+DEFAULT_VARIANT = "default"  # the model's own materials, not a KHR_materials_variants variant
+GLB_MAGIC = b"glTF"
+HASH_BLOCK = 1 << 20
+
+
+# --- hashing ----------------------------------------------------------------------------------
+
+
+def sha256_file(path: Path) -> str:
+    """Hex SHA-256 of a file's bytes."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        while block := handle.read(HASH_BLOCK):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def model_hashes(path: Path) -> tuple[str, str]:
+    """(SHA-256 of the model file, SHA-256 of it and every external file it references).
+
+    External buffers and images are the relative ``uri`` entries (glTF 2.0 spec §URIs), found
+    in the JSON of a .gltf or the JSON chunk of a .glb (spec §GLB File Format Specification).
+    A missing or out-of-folder reference is hashed by name only: the loader reports it.
+    """
+    file_hash = sha256_file(path)
+    combined = hashlib.sha256(file_hash.encode())
+    folder = path.parent.resolve()
+    for uri in sorted(_external_uris(path)):
+        target = (folder / unquote(uri)).resolve()
+        inside = target.is_relative_to(folder) and target.is_file()
+        combined.update(f"\n{uri}\n{sha256_file(target) if inside else 'missing'}".encode())
+    return file_hash, combined.hexdigest()
+
+
+def _external_uris(path: Path) -> set[str]:
+    """Relative URIs of buffers and images; nothing for a file that is not valid glTF."""
+    try:
+        with open(path, "rb") as handle:
+            head = handle.read(20)
+            if head[:4] == GLB_MAGIC and len(head) == 20:
+                json_length, chunk_type = struct.unpack("<II", head[12:20])
+                raw = handle.read(json_length) if chunk_type == 0x4E4F534A else b""
+            else:
+                raw = head + handle.read()
+        document = json.loads(raw)
+    except (OSError, ValueError, RecursionError):
+        return set()
+    uris = set()
+    for key in ("buffers", "images"):
+        entries = document.get(key) if isinstance(document, dict) else None
+        for entry in entries if isinstance(entries, list) else []:
+            uri = entry.get("uri") if isinstance(entry, dict) else None
+            if isinstance(uri, str) and not uri.startswith("data:"):
+                parts = urlsplit(uri)
+                if not parts.scheme and not parts.netloc and "\x00" not in uri:
+                    uris.add(uri)
+    return uris
+
+
+def preset_sha256(preset: Preset) -> str:
+    """SHA-256 of the resolved preset as canonical JSON (sorted keys, no spaces).
+
+    The description is left out (it changes no pixel); an environment image is represented by
+    its content hash rather than its path, so moving the preset does not re-render a catalog.
+    """
+    data = preset.model_dump(mode="json")
+    data.pop("description", None)
+    image = data.get("environment", {}).get("image")
+    if image:
+        data["environment"]["image"] = "sha256:" + sha256_file(Path(image))
+    return _sha256_json(data)
+
+
+def _sha256_json(value: object) -> str:
+    text = json.dumps(value, sort_keys=True, separators=(",", ":"), ensure_ascii=True)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+# --- frames -----------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, order=True)
+class FrameId:
+    """Which frame: the variant ("default" or a KHR_materials_variants name), shot and index."""
+
+    variant: str
+    shot: str
+    index: int
+
+
+def shot_frame_counts(preset: Preset) -> list[tuple[str, int]]:
+    """(shot name, number of frames) for every shot, without a model.
+
+    Matches ``shots.planner.plan_frames``: one frame per named view, one for a file camera,
+    ``frames`` for turntables, orbits and paths. Workers check the planner agrees.
+    """
+    counts = []
+    for shot in preset.shots:
+        if isinstance(shot, ViewsShot):
+            counts.append((shot.name, len(shot.views)))
+        elif isinstance(shot, FileCameraShot):
+            counts.append((shot.name, 1))
+        else:
+            counts.append((shot.name, int(shot.frames)))
+    return counts
+
+
+def frame_ids(preset: Preset, variant: str) -> list[FrameId]:
+    """Every frame of the preset for one variant, in preset order."""
+    return [
+        FrameId(variant, shot, index)
+        for shot, count in shot_frame_counts(preset)
+        for index in range(count)
+    ]
+
+
+def frame_key(inputs_sha256: str, preset_hash: str, version: str, bits: int, frame: FrameId) -> str:
+    """The frame's key: equal keys, equal image bytes."""
+    return _sha256_json(
+        ["frame", inputs_sha256, preset_hash, version, bits, frame.variant, frame.shot, frame.index]
+    )
+
+
+def animation_key(frame_keys: list[str], kind: str, settings: dict) -> str:
+    """An animation's key: its frames' keys, its format and the encoder settings."""
+    return _sha256_json(["animation", kind, settings, frame_keys])
+
+
+# --- tasks for workers --------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class RenderTask:
+    """A chunk of one model's frames for one worker: it loads and prepares the model once.
+
+    Attributes
+    ----------
+    model : the model file. inputs_sha256 : its inputs hash (the worker's cache key).
+    variant : "default" or a KHR_materials_variants name.
+    frames : (shot, index) pairs to render, in order.
+    preset, preset_sha256 : the resolved preset and its hash.
+    bits : PNG bit depth. exr : also return linear EXR bytes.
+    """
+
+    model: str
+    inputs_sha256: str
+    variant: str
+    frames: tuple[tuple[str, int], ...]
+    preset: Preset
+    preset_sha256: str
+    bits: int = 8
+    exr: bool = False
+
+
+@dataclass
+class ModelVariantJob:
+    """The frames one (model, variant) still needs."""
+
+    model: str
+    inputs_sha256: str
+    variant: str
+    pending: list[FrameId] = field(default_factory=list)
+
+
+def chunk_tasks(jobs: list[ModelVariantJob], workers: int, preset: Preset, preset_hash: str,
+                bits: int, exr: bool) -> list[RenderTask]:
+    """Split the pending frames into tasks, largest jobs first.
+
+    One worker takes each job whole (a model is loaded once). Several workers get chunks of
+    about a third of their fair share, so the last chunks finish close together, while a large
+    catalog still keeps each model in one chunk.
+    """
+    total = sum(len(job.pending) for job in jobs)
+    if total == 0:
+        return []
+    size = total if workers <= 1 else max(1, math.ceil(total / (3 * workers)))
+    tasks = []
+    for job in sorted(jobs, key=lambda j: -len(j.pending)):
+        pieces = math.ceil(len(job.pending) / size)
+        for k in range(pieces):
+            start, stop = _bounds(len(job.pending), pieces, k)
+            frames = tuple((f.shot, f.index) for f in job.pending[start:stop])
+            tasks.append(
+                RenderTask(job.model, job.inputs_sha256, job.variant, frames, preset, preset_hash,
+                           bits, exr)
+            )
+    return tasks
+
+
+def _bounds(count: int, pieces: int, k: int) -> tuple[int, int]:
+    """Piece ``k`` of ``count`` items split into ``pieces`` near-equal runs."""
+    return count * k // pieces, count * (k + 1) // pieces

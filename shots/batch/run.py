@@ -1,0 +1,720 @@
+"""A catalog batch: every model × variant × shot × frame of a preset, incremental and resumable.
+
+    summary = run_batch("catalog/", "thumbnail", "out/")
+
+1. find the models, hash them and read their manifests (``jobs``, ``manifest``);
+2. keep every frame whose file exists and whose manifest key matches; the rest are pending;
+3. render the pending frames in chunks on a runner (``runner``, ``worker``), writing each file
+   atomically as it arrives and the model's manifest after it;
+4. once a model is complete, encode its animations (``encode``);
+5. write the catalog index and the contact sheet (``manifest``, ``sheet``).
+
+Only this process writes into the output folder. A broken model fails alone; the summary says
+which and why.
+"""
+
+from __future__ import annotations
+
+import re
+import time
+from collections import deque
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import shots
+from shots.batch import encode, jobs, manifest
+from shots.batch.catalog import CatalogModel, find_models
+from shots.batch.jobs import DEFAULT_VARIANT, FrameId, ModelVariantJob, RenderTask
+from shots.batch.layout import CONTACT_SHEET, INDEX_CSV, INDEX_JSON, Layout
+from shots.batch.progress import Reporter
+from shots.batch.runner import WORKER_DIED, available_cores, make_runner
+from shots.batch.sheet import CELL, SheetCell, contact_sheet_bytes
+from shots.batch.worker import TaskResult, exr_available, probe_variants, render_task
+from shots.errors import BatchError
+from shots.output import atomic_write_bytes
+from shots.presets import OrbitShot, PathShot, Preset, TurntableShot, load_preset
+
+VARIANT_CHOICES = ("default", "all")
+LOCK_NAME = ".shots-batch.lock"
+# Temporary files of shots.output.atomic_write_bytes: ".<name>.<8 random chars>.part"
+TEMPORARY_FILE = re.compile(r"^\..+\.[A-Za-z0-9_]{8}\.part$")
+
+
+@dataclass
+class ModelOutcome:
+    """How one model fared."""
+
+    model: str
+    listed_as: str
+    variants: list[str]
+    rendered: int
+    skipped: int
+    failed: int
+    error: str | None
+
+
+@dataclass
+class BatchSummary:
+    """The result of ``run_batch``; ``exit_code`` is 1 when any model failed."""
+
+    out_dir: Path
+    models: list[ModelOutcome]
+    animations_written: int
+    seconds: float
+    index: Path | None
+    contact_sheet: Path | None
+    notes: list[str] = field(default_factory=list)
+    report: Path | None = None  # the consistency report (report.md) of the first frames
+    flagged: list[tuple[Path, list[str]]] = field(default_factory=list)
+
+    @property
+    def frames_rendered(self) -> int:
+        return sum(m.rendered for m in self.models)
+
+    @property
+    def frames_skipped(self) -> int:
+        return sum(m.skipped for m in self.models)
+
+    @property
+    def frames_failed(self) -> int:
+        return sum(m.failed for m in self.models)
+
+    @property
+    def failures(self) -> list[tuple[str, str]]:
+        """(model as listed, reason) for every failed model."""
+        return [(m.listed_as, m.error) for m in self.models if m.error is not None]
+
+    @property
+    def exit_code(self) -> int:
+        return 1 if self.failures else 0
+
+
+@dataclass
+class ModelState:
+    """Everything the batch knows about one model while it runs."""
+
+    entry: CatalogModel
+    file_sha256: str = ""
+    inputs_sha256: str = ""
+    old: dict | None = None
+    available: list[str] | None = None  # KHR_materials_variants names, once known
+    variants: list[str] = field(default_factory=list)  # the ones rendered
+    planned: list[FrameId] = field(default_factory=list)
+    paths: dict[FrameId, str] = field(default_factory=dict)
+    keys: dict[FrameId, str] = field(default_factory=dict)
+    entries: dict[FrameId, dict] = field(default_factory=dict)
+    pending: set[FrameId] = field(default_factory=set)
+    animations: dict[tuple, dict] = field(default_factory=dict)
+    warnings: set[str] = field(default_factory=set)
+    timings: dict[str, float] = field(default_factory=dict)
+    rendered: int = 0
+    skipped: int = 0
+    failed: int = 0
+    error: str | None = None
+    done: bool = False
+
+    @property
+    def name(self) -> str:
+        return self.entry.name
+
+    @property
+    def key(self) -> str:
+        return str(self.entry.path)
+
+    def add_time(self, name: str, seconds: float) -> None:
+        self.timings[name] = round(self.timings.get(name, 0.0) + seconds, 4)
+
+
+def run_batch(
+    source: str | Path,
+    preset: str | Path | Preset,
+    out_dir: str | Path,
+    *,
+    variants: str = "default",
+    force: bool = False,
+    workers: int | None = None,
+    cluster: str | None = None,
+    quiet: bool = False,
+    log_json: str | Path | None = None,
+    template: str | None = None,
+    bits: int = 8,
+    exr: bool = False,
+    animations: tuple[str, ...] = encode.ANIMATION_FORMATS,
+    fps: float = 12.0,
+    threads: int | None = None,
+    console=None,
+) -> BatchSummary:
+    """Render a catalog: every model of ``source`` × variants × every shot of ``preset``.
+
+    Parameters
+    ----------
+    source : a folder of .gltf/.glb models (searched recursively) or a list file.
+    preset : a Preset, a built-in preset name or a TOML preset path.
+    out_dir : the output folder.
+    variants : "default" (the models' own materials) or "all" (every KHR_materials_variants
+        variant; a model without variants renders its default look).
+    force : render every frame even when it is up to date.
+    workers : local worker processes (default: the cores); 1 renders in this process.
+    cluster : address of a Dask distributed scheduler to send the tasks to instead.
+    quiet : no progress bars. log_json : JSON-lines event log path.
+    template : frame path template (``shots.batch.layout``).
+    bits : PNG bit depth, 8 or 16. exr : also write linear premultiplied EXR files.
+    animations : formats for shots that move the camera ("gif", "webp", "mp4").
+    fps : animation frame rate. threads : numba threads per worker (default cores // workers).
+
+    Raises
+    ------
+    BatchError, PresetError : the run cannot start (bad source, template, preset or options).
+    A broken model does not raise: it is reported in the summary (``exit_code`` 1).
+    """
+    started = time.perf_counter()
+    if variants not in VARIANT_CHOICES:
+        raise BatchError("--variants", None, f"expected 'default' or 'all', got {variants!r}")
+    if bits not in (8, 16):
+        raise BatchError("--bits", None, f"PNG bit depth must be 8 or 16, got {bits}")
+    if not fps > 0:
+        raise BatchError("--fps", None, f"must be positive, got {fps}")
+    if workers is not None and workers < 1:
+        raise BatchError("--workers", None, f"must be 1 or more, got {workers}")
+    unknown = [a for a in animations if a not in encode.ANIMATION_FORMATS]
+    if unknown:
+        raise BatchError("--animations", None, f"unknown format(s) {', '.join(unknown)} "
+                                               f"(known: {', '.join(encode.ANIMATION_FORMATS)})")
+    if not isinstance(preset, Preset):
+        preset = load_preset(preset)
+    batch = Batch(
+        preset=preset, layout=Layout.create(Path(out_dir), template),
+        models=find_models(Path(source)), variants=variants, force=force,
+        workers=workers, cluster=cluster, bits=bits, exr=exr, animations=tuple(animations),
+        fps=float(fps), threads=threads,
+    )
+    with Reporter(quiet=quiet, log_json=Path(log_json) if log_json else None,
+                  console=console) as reporter:
+        summary = batch.run(reporter)
+        summary.seconds = time.perf_counter() - started
+        reporter.event("summary", models=len(summary.models), failed=len(summary.failures),
+                       rendered=summary.frames_rendered, skipped=summary.frames_skipped,
+                       frames_failed=summary.frames_failed,
+                       animations=summary.animations_written,
+                       seconds=round(summary.seconds, 3), exit_code=summary.exit_code,
+                       failures=[{"model": m, "reason": r} for m, r in summary.failures])
+    return summary
+
+
+class Batch:
+    """One run of a catalog batch (``run_batch`` is the way in)."""
+
+    def __init__(self, preset: Preset, layout: Layout, models: list[CatalogModel],
+                 variants: str, force: bool, workers: int | None, cluster: str | None,
+                 bits: int, exr: bool, animations: tuple[str, ...], fps: float,
+                 threads: int | None):
+        self.preset = preset
+        self.layout = layout
+        self.variant_choice = variants
+        self.force = force
+        self.workers = workers or available_cores()
+        self.cluster = cluster
+        self.bits = bits
+        self.fps = fps
+        self.threads = threads
+        self.notes: list[str] = []
+        self.exr = exr and self._exr_writer()
+        self.animations = self._encoders(animations)
+        self.preset_hash = jobs.preset_sha256(preset)
+        self.version = shots.__version__
+        self.size = f"{preset.image.width}x{preset.image.height}"
+        self.counts = dict(jobs.shot_frame_counts(preset))
+        self.moving = {s.name for s in preset.shots
+                       if isinstance(s, TurntableShot | OrbitShot | PathShot)}
+        self.states = [ModelState(entry) for entry in models]
+        self.by_key = {state.key: state for state in self.states}
+        self.owners: dict[str, str] = {}  # output path → model that writes it
+        self.animations_written = 0
+        self.runner = None
+        self.reporter: Reporter | None = None
+        self._check_template()
+
+    # --- set-up -------------------------------------------------------------------------------
+
+    def _exr_writer(self) -> bool:
+        if exr_available():
+            return True
+        self.notes.append("EXR skipped: no EXR writer installed (pip install OpenEXR)")
+        return False
+
+    def _encoders(self, wanted: tuple[str, ...]) -> tuple[str, ...]:
+        if "mp4" in wanted:
+            try:
+                import imageio_ffmpeg  # noqa: F401
+            except ImportError:
+                self.notes.append("MP4 skipped: pip install imageio-ffmpeg")
+                wanted = tuple(w for w in wanted if w != "mp4")
+        return wanted
+
+    def _check_template(self) -> None:
+        """Refuse a template that would make frames of this catalog overwrite each other."""
+        fields = self.layout.fields
+        needs = [
+            ("model", len(self.states) > 1, "the catalog has several models"),
+            ("shot", len(self.counts) > 1, "the preset has several shots"),
+            ("frame", any(n > 1 for n in self.counts.values()), "a shot has several frames"),
+            ("variant", self.variant_choice == "all", "--variants all is given"),
+        ]
+        for name, needed, why in needs:
+            if needed and name not in fields:
+                raise BatchError("--template", self.layout.template,
+                                 f"needs {{{name}}}: {why}")
+
+    def _lock(self):
+        """Hold an exclusive lock on the output folder; the OS drops it even on SIGKILL."""
+        self.layout.out_dir.mkdir(parents=True, exist_ok=True)
+        handle = open(self.layout.out_dir / LOCK_NAME, "a+b")  # noqa: SIM115
+        try:
+            import fcntl
+        except ImportError:  # no advisory locks on this OS
+            return handle
+        try:
+            fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            handle.close()
+            raise BatchError(self.layout.out_dir, None,
+                             "another batch is writing to this folder") from None
+        return handle
+
+    def _remove_temporary_files(self) -> None:
+        """Delete what a killed run left half-written (only ever under temporary names)."""
+        for path in self.layout.out_dir.rglob(".*.part"):
+            if TEMPORARY_FILE.match(path.name) and path.is_file():
+                path.unlink(missing_ok=True)
+
+    # --- the run ------------------------------------------------------------------------------
+
+    def run(self, reporter: Reporter) -> BatchSummary:
+        self.reporter = reporter
+        for note in self.notes:
+            reporter.note(note)
+        lock = self._lock()
+        try:
+            self._remove_temporary_files()
+            for state in self.states:
+                self._inspect(state)
+            reporter.totals(len(self.states), self._frame_total())
+            try:
+                self._probe_variants()
+                for state in self.states:
+                    self._plan(state)
+                reporter.totals(len(self.states), self._frame_total())
+                self._render(self._tasks())
+            finally:
+                if self.runner is not None:
+                    self.runner.close()
+            index, sheet = self._write_catalog()
+            report = self._check_consistency()
+        finally:
+            lock.close()
+        return BatchSummary(
+            out_dir=self.layout.out_dir, models=[self._outcome(s) for s in self.states],
+            animations_written=self.animations_written, seconds=0.0, index=index,
+            contact_sheet=sheet, notes=self.notes,
+            report=report.markdown_path if report else None,
+            flagged=report.flagged if report else [],
+        )
+
+    def _check_consistency(self):
+        """Write the consistency report (shots.check) over the first frame of every shot."""
+        from shots.check import check_renders
+
+        images = [
+            self.layout.absolute(state.paths[FrameId(variant, shot.name, 0)])
+            for state in self.states if state.error is None
+            for variant in state.variants
+            for shot in self.preset.shots
+            if FrameId(variant, shot.name, 0) in state.paths
+        ]
+        images = [path for path in images if path.is_file()]
+        if not images:
+            return None
+        return check_renders(images, report_dir=self.layout.out_dir)
+
+    def _frame_total(self) -> int:
+        per_variant = sum(self.counts.values())
+        return sum(len(s.variants or [DEFAULT_VARIANT]) * per_variant for s in self.states)
+
+    def _get_runner(self, frames: int):
+        """The runner, started on first use with no more local workers than ``frames``."""
+        if self.runner is None:
+            workers = max(1, min(self.workers, frames))
+            self.runner = make_runner(workers, self.cluster, self.threads)
+        return self.runner
+
+    def _inspect(self, state: ModelState) -> None:
+        """Hash the model and read its manifest; a missing file fails the model here."""
+        path = state.entry.path
+        if not path.is_file():
+            self._fail(state, f"{state.entry.listed_as}: no such model file", [])
+            return
+        try:
+            state.file_sha256, state.inputs_sha256 = jobs.model_hashes(path)
+        except OSError as exc:
+            self._fail(state, f"{state.entry.listed_as}: cannot read: {exc.strerror}", [])
+            return
+        old = manifest.read_manifest(self.layout.absolute(self.layout.manifest_path(state.name)))
+        if old is not None and old.get("inputs_sha256") == state.inputs_sha256:
+            state.old = old
+            if isinstance(old.get("variants"), list):
+                state.available = [str(v) for v in old["variants"]]
+            state.warnings.update(str(w) for w in old.get("warnings", []))
+        if self.variant_choice == "default":
+            state.variants = [DEFAULT_VARIANT]
+        elif state.available is not None:
+            state.variants = list(state.available) or [DEFAULT_VARIANT]
+
+    def _probe_variants(self) -> None:
+        """For ``--variants all``: load the models whose variant names are not known yet."""
+        unknown = [s for s in self.states if s.error is None and not s.variants]
+        if not unknown:
+            return
+        runner = self._get_runner(self._frame_total())
+        futures = {runner.submit(probe_variants, s.key, s.inputs_sha256, self.preset,
+                                 self.preset_hash): s
+                   for s in unknown}
+        pending = set(futures)
+        while pending:
+            done, pending = runner.wait_any(pending)
+            for future in done:
+                state = futures[future]
+                result = runner.result(future, state.key, DEFAULT_VARIANT)
+                state.add_time("load_s", result.load_seconds)
+                if result.failure is not None:
+                    self._fail(state, result.failure.message, [])
+                    continue
+                state.available = list(result.variants)
+                state.warnings.update(result.warnings)
+                state.variants = list(result.variants) or [DEFAULT_VARIANT]
+
+    def _plan(self, state: ModelState) -> None:
+        """Each frame's path and key; keep the up-to-date ones, the rest become pending."""
+        if state.error is not None:
+            return
+        old_frames = {}
+        for entry in (state.old or {}).get("frames", []):
+            try:
+                old_frames[FrameId(entry["variant"], entry["shot"], entry["frame"])] = entry
+            except (KeyError, TypeError):
+                continue
+        paths = {}
+        for variant in state.variants:
+            for frame in jobs.frame_ids(self.preset, variant):
+                state.planned.append(frame)
+                path = self.layout.frame_path(state.name, variant, frame.shot, frame.index,
+                                              self.size)
+                paths[frame] = path
+                state.keys[frame] = jobs.frame_key(state.inputs_sha256, self.preset_hash,
+                                                   self.version, self.bits, frame)
+        clash = self._claim(state, list(paths.values()) + self._animation_paths(state))
+        if clash:
+            self._fail(state, clash, state.planned)
+            return
+        state.paths = paths
+        for frame in state.planned:
+            entry = old_frames.get(frame)
+            if not self.force and self._up_to_date(entry, state.keys[frame], paths[frame]):
+                state.entries[frame] = entry
+                state.skipped += 1
+                self.reporter.frame("skipped", state.name, frame.variant, frame.shot,
+                                    frame.index, paths[frame])
+            else:
+                state.pending.add(frame)
+        if not state.pending:
+            self._finish(state)
+
+    def _animation_paths(self, state: ModelState) -> list[str]:
+        return [
+            self.layout.animation_path(state.name, variant, shot, self.size, kind)
+            for variant in state.variants for shot in self.moving if self.counts[shot] > 1
+            for kind in self.animations
+        ]
+
+    def _claim(self, state: ModelState, paths: list[str]) -> str | None:
+        """Reserve output paths for a model; a message if another model already has one."""
+        exr = [str(Path(p).with_suffix(".exr").as_posix()) for p in paths if p.endswith(".png")]
+        wanted = paths + (exr if self.exr else [])
+        if len(set(wanted)) != len(wanted):
+            return (f"{state.entry.listed_as}: two of its outputs share a path under the "
+                    f"template {self.layout.template!r} (variant names alike once made safe?)")
+        for path in wanted:
+            owner = self.owners.get(path)
+            if owner is not None:
+                return (f"{state.entry.listed_as}: its output {path!r} would overwrite one of "
+                        f"{owner} (two models with the same name?)")
+        self.owners.update(dict.fromkeys(wanted, state.entry.listed_as))
+        return None
+
+    def _up_to_date(self, entry: dict | None, key: str, path: str) -> bool:
+        if entry is None or entry.get("key") != key or entry.get("path") != path:
+            return False
+        if not self.layout.absolute(path).is_file():
+            return False
+        if self.exr:
+            exr = entry.get("exr")
+            return bool(exr) and self.layout.absolute(exr).is_file()
+        return True
+
+    def _tasks(self) -> list[RenderTask]:
+        variant_jobs = []
+        for state in self.states:
+            if state.error is not None or not state.pending:
+                continue
+            for variant in state.variants:
+                pending = [f for f in state.planned if f in state.pending and f.variant == variant]
+                if pending:
+                    variant_jobs.append(
+                        ModelVariantJob(state.key, state.inputs_sha256, variant, pending)
+                    )
+        if not variant_jobs:
+            return []
+        # chunks are cut for the runner's size: a cluster's threads, else the local workers
+        workers = self._get_runner(sum(len(j.pending) for j in variant_jobs)).workers
+        return jobs.chunk_tasks(variant_jobs, workers, self.preset, self.preset_hash, self.bits,
+                               self.exr)
+
+    def _render(self, tasks: list[RenderTask]) -> None:
+        if not tasks:
+            return
+        runner = self._get_runner(sum(len(t.frames) for t in tasks))
+        capacity = 1 if runner.workers == 1 else 2 * runner.workers
+        queue = deque(tasks)
+        retried: set[int] = set()
+        in_flight: dict = {}
+        while queue or in_flight:
+            while queue and len(in_flight) < capacity:
+                task = queue.popleft()
+                state = self.by_key[task.model]
+                if state.error is not None:
+                    self._fail(state, state.error, self._frames_of(task))
+                    continue
+                in_flight[runner.submit(render_task, task)] = task
+            if not in_flight:
+                break
+            done, _ = runner.wait_any(set(in_flight))
+            for future in done:
+                task = in_flight.pop(future)
+                result = runner.result(future, task.model, task.variant)
+                failure = result.failure
+                if failure is not None and failure.kind == WORKER_DIED and id(task) not in retried:
+                    retried.add(id(task))  # once: the task may only have shared the pool
+                    queue.appendleft(task)
+                    continue
+                self._take(task, result)
+
+    @staticmethod
+    def _frames_of(task: RenderTask) -> list[FrameId]:
+        return [FrameId(task.variant, shot, index) for shot, index in task.frames]
+
+    def _take(self, task: RenderTask, result: TaskResult) -> None:
+        """Write a finished chunk's files, then the model's manifest."""
+        state = self.by_key[task.model]
+        state.add_time("load_s", result.load_seconds)
+        state.add_time("prepare_s", result.prepare_seconds)
+        state.warnings.update(result.warnings)
+        if result.variants:
+            state.available = list(result.variants)
+        if state.error is not None or result.failure is not None:
+            error = state.error or result.failure.message
+            self._fail(state, error, self._frames_of(task), result.failure)
+            return
+        for image in result.images:
+            frame = FrameId(task.variant, image.shot, image.index)
+            start = time.perf_counter()
+            path = state.paths[frame]
+            atomic_write_bytes(self.layout.absolute(path), image.png)
+            exr_path = None
+            if image.exr is not None:
+                exr_path = Path(path).with_suffix(".exr").as_posix()
+                atomic_write_bytes(self.layout.absolute(exr_path), image.exr)
+            write_seconds = time.perf_counter() - start
+            state.entries[frame] = self._frame_entry(state, frame, image, path, exr_path,
+                                                     write_seconds)
+            state.pending.discard(frame)
+            state.rendered += 1
+            state.add_time("render_s", image.render_seconds)
+            state.add_time("encode_s", image.encode_seconds)
+            state.add_time("write_s", write_seconds)
+            self.reporter.frame("rendered", state.name, frame.variant, frame.shot, frame.index,
+                                path, round(image.render_seconds, 4))
+        self._write_manifest(state)
+        if not state.pending:
+            self._finish(state)
+
+    def _frame_entry(self, state, frame: FrameId, image, path, exr_path, write_seconds) -> dict:
+        return {
+            "variant": frame.variant, "shot": frame.shot, "frame": frame.index,
+            "view": image.view, "path": path, "exr": exr_path, "key": state.keys[frame],
+            "seed": image.seed, "width": image.camera["width"],
+            "height": image.camera["height"], "camera": image.camera,
+            "timings": {"render_s": round(image.render_seconds, 4),
+                        "encode_s": round(image.encode_seconds, 4),
+                        "write_s": round(write_seconds, 4)},
+        }
+
+    def _fail(self, state: ModelState, message: str, frames: list[FrameId],
+              failure=None) -> None:
+        first = state.error is None
+        state.error = message
+        for frame in frames:
+            state.pending.discard(frame)
+            state.failed += 1
+            self.reporter.frame("failed", state.name, frame.variant, frame.shot, frame.index,
+                                reason=message)
+        if first:
+            if not frames:
+                self.reporter.frame("failed", state.name, DEFAULT_VARIANT, None, None,
+                                    reason=message)
+            details = failure.details if failure is not None and failure.details else None
+            self.reporter.model_done(state.name, failed=True, reason=message, details=details)
+
+    # --- a finished model ---------------------------------------------------------------------
+
+    def _finish(self, state: ModelState) -> None:
+        """All frames are in place: encode the animations, write the manifest."""
+        started, before = time.perf_counter(), self.animations_written
+        old = {}
+        for entry in (state.old or {}).get("animations", []):
+            try:
+                old[(entry["variant"], entry["shot"], entry["format"])] = entry
+            except (KeyError, TypeError):
+                continue
+        for variant in state.variants:
+            for shot in self.preset.shots:
+                if shot.name in self.moving and self.counts[shot.name] > 1:
+                    self._animate(state, variant, shot.name, old)
+        written = self.animations_written - before
+        if state.rendered or written:
+            state.add_time("animate_s", time.perf_counter() - started)
+        elif state.old is not None:  # nothing new: the timings of the run that made the files
+            state.timings = dict(state.old.get("timings") or {})
+        state.done = True
+        self._write_manifest(state)
+        self.reporter.model_done(state.name, failed=False)
+
+    def _animate(self, state: ModelState, variant: str, shot: str, old: dict) -> None:
+        frames = [FrameId(variant, shot, k) for k in range(self.counts[shot])]
+        keys = [state.keys[f] for f in frames]
+        wanted = {}
+        for kind in self.animations:
+            path = self.layout.animation_path(state.name, variant, shot, self.size, kind)
+            key = jobs.animation_key(keys, kind, self._animation_settings(kind))
+            entry = old.get((variant, shot, kind))
+            if (not self.force and entry is not None and entry.get("key") == key
+                    and entry.get("path") == path and self.layout.absolute(path).is_file()):
+                state.animations[(variant, shot, kind)] = entry
+            else:
+                wanted[kind] = (path, key)
+        if not wanted:
+            return
+        pictures = [encode.read_rgba8(self.layout.absolute(state.paths[f])) for f in frames]
+        encoded = encode.encode_animations(tuple(wanted), pictures, self.fps,
+                                           self._flatten_colour())
+        height, width = pictures[0].shape[:2]
+        for kind, (path, key) in wanted.items():
+            atomic_write_bytes(self.layout.absolute(path), encoded[kind])
+            self.animations_written += 1
+            state.animations[(variant, shot, kind)] = {
+                "variant": variant, "shot": shot, "format": kind, "path": path, "key": key,
+                "frames": len(frames), "fps": self.fps, "width": width, "height": height,
+            }
+
+    def _animation_settings(self, kind: str) -> dict:
+        settings = {"fps": self.fps}
+        if kind in ("gif", "mp4"):
+            settings["background"] = list(self._flatten_colour())
+        if kind == "mp4":
+            settings["crf"] = encode.MP4_CRF
+        return settings
+
+    def _flatten_colour(self) -> tuple[float, float, float]:
+        """The preset's background colour where it has one, else white."""
+        background = self.preset.background
+        if background.kind in ("solid", "gradient"):
+            return tuple(background.color)
+        return (1.0, 1.0, 1.0)
+
+    def _manifest_header(self, state: ModelState) -> dict:
+        return {
+            "model": state.name,
+            "file": state.entry.listed_as,
+            "sha256": state.file_sha256,
+            "inputs_sha256": state.inputs_sha256,
+            "preset": self.preset.name,
+            "preset_sha256": self.preset_hash,
+            "renderer_version": self.version,
+            "settings": {"bits": self.bits, "exr": self.exr, "template": self.layout.template,
+                         "animations": list(self.animations), "fps": self.fps},
+            "variants": state.available or [],
+            "rendered_variants": state.variants,
+            "warnings": sorted(state.warnings),
+        }
+
+    def _write_manifest(self, state: ModelState) -> None:
+        document = manifest.manifest_document(
+            self._manifest_header(state), list(state.entries.values()),
+            list(state.animations.values()), dict(sorted(state.timings.items())),
+        )
+        path = self.layout.absolute(self.layout.manifest_path(state.name))
+        manifest.write_if_changed(path, manifest.json_bytes(document))
+
+    # --- catalog files ------------------------------------------------------------------------
+
+    def _write_catalog(self) -> tuple[Path, Path | None]:
+        finished = [s for s in self.states if s.done and s.error is None]
+        sheet_path = self._write_sheet(finished)
+        models, frames, animations = [], [], []
+        for state in self.states:
+            models.append({
+                "model": state.name, "file": state.entry.listed_as, "sha256": state.file_sha256,
+                "manifest": self.layout.manifest_path(state.name),
+                "status": "failed" if state.error else "ok", "error": state.error,
+                "variants": state.variants,
+            })
+            if state not in finished:
+                continue
+            for frame in sorted(state.entries):
+                entry = state.entries[frame]
+                frames.append({"model": state.name, **{k: entry[k] for k in (
+                    "variant", "shot", "frame", "view", "path", "exr", "key", "seed", "width",
+                    "height")}})
+            for key in sorted(state.animations):
+                animations.append({"model": state.name, **state.animations[key]})
+        header = {
+            "preset": self.preset.name, "preset_sha256": self.preset_hash,
+            "renderer_version": self.version, "template": self.layout.template,
+            "contact_sheet": CONTACT_SHEET if sheet_path else None,
+        }
+        document = manifest.index_document(header, models, frames, animations)
+        index = self.layout.absolute(INDEX_JSON)
+        manifest.write_if_changed(index, manifest.json_bytes(document))
+        manifest.write_if_changed(self.layout.absolute(INDEX_CSV),
+                                  manifest.index_csv_bytes(frames, animations))
+        return index, sheet_path
+
+    def _write_sheet(self, finished: list[ModelState]) -> Path | None:
+        rows = []
+        for state in finished:
+            for variant in state.variants:
+                rows.append([
+                    SheetCell(self.layout.absolute(state.paths[FrameId(variant, shot.name, 0)]),
+                              state.name, f"{variant} / {shot.name}")
+                    for shot in self.preset.shots
+                ])
+        if not rows:
+            return None
+        background = CELL if self.preset.background.kind == "transparent" else \
+            self._flatten_colour()
+        path = self.layout.absolute(CONTACT_SHEET)
+        manifest.write_if_changed(path, contact_sheet_bytes(rows, background))
+        return path
+
+    def _outcome(self, state: ModelState) -> ModelOutcome:
+        return ModelOutcome(model=state.name, listed_as=state.entry.listed_as,
+                            variants=state.variants, rendered=state.rendered,
+                            skipped=state.skipped, failed=state.failed, error=state.error)
