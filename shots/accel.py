@@ -26,8 +26,8 @@ class Bvh(NamedTuple):
     ----------
     node_bounds : (m, 8, 4) float32 node records, 128-byte aligned: rows 0–5 are the child boxes
         (min x, max x, min y, max y, min z, max z; one column per child), row 6 holds the links.
-    node_links : (m, 4) int32 view of row 6 of the same memory: child node index (>= 0) or
-        encoded leaf range (< 0).
+    node_links : (m, 8, 4) int32 view of the same records; ``node_links[:, 6]`` are the child
+        links: inner node index (>= 0) or encoded leaf range (< 0).
     tri_verts : (n, 9) float32, vertices p0, p1, p2 of each triangle in leaf order.
     tri_ids : (n,) int32, original triangle index of each leaf-order triangle.
     """
@@ -107,21 +107,25 @@ def _aligned_empty(shape, dtype, align=128) -> np.ndarray:
 
 def _node_records(bounds: np.ndarray, links: np.ndarray):
     """Pack each node into one 128-byte record (two cache lines): six rows of child bounds, one
-    row of child links (stored as int32 bits) and one of padding. Returns the float32 records and
-    an int32 view of their link row."""
-    m = len(bounds)
-    records = _aligned_empty((m, 8, bvh_build.WIDTH), np.float32)
+    row of child links (int32 bits) and one of padding. Returns the float32 records and their
+    int32 view (one array type for the kernels whatever the tree, and after pickling)."""
+    records = _aligned_empty((len(bounds), bvh_build.NODE_ROWS, bvh_build.WIDTH), np.float32)
     records[:, :6] = bounds
     as_int = records.view(np.int32)
-    as_int[:, 6] = links
-    as_int[:, 7] = 0
-    return records, as_int[:, 6]
+    as_int[:, bvh_build.LINK_ROW] = links
+    as_int[:, bvh_build.LINK_ROW + 1 :] = 0
+    return records, as_int
 
 
 def sah_cost(bvh: Bvh, cost_traversal: float = 1.0, cost_intersect: float = 1.0) -> float:
     """Expected cost of a random ray through the root box under the SAH (for reports)."""
     return float(
-        bvh_build.sah_cost(bvh.node_bounds, bvh.node_links, cost_traversal, cost_intersect)
+        bvh_build.sah_cost(
+            bvh.node_bounds,
+            np.ascontiguousarray(bvh.node_links[:, bvh_build.LINK_ROW]),
+            cost_traversal,
+            cost_intersect,
+        )
     )
 
 

@@ -80,6 +80,7 @@ def render(
             scene_choice=parse_scene(scene),
             variant=variant,
             on_frame=lambda r: out.print(f"wrote {r.path}", highlight=False),
+            on_warning=lambda text: err.print(f"[yellow]warning:[/] {text}", highlight=False),
         )
     except ShotsError as exc:
         fail(str(exc))

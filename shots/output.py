@@ -16,6 +16,15 @@ from shots.colour import quantize, to_display
 from shots.errors import RenderError
 
 
+def _read_umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+CURRENT_UMASK = _read_umask()
+
+
 def atomic_write_bytes(path: Path, data: bytes) -> None:
     """Write ``data`` to ``path`` through a temporary file in the same folder and a rename."""
     path = Path(path)
@@ -29,6 +38,7 @@ def atomic_write_bytes(path: Path, data: bytes) -> None:
             handle.write(data)
             handle.flush()
             os.fsync(handle.fileno())
+        os.chmod(tmp, 0o666 & ~CURRENT_UMASK)  # mkstemp makes 0600; give a normal file's mode
         os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)

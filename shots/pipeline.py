@@ -11,6 +11,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from shots.gltf import load_scene
+from shots.hints import model_hints
 from shots.output import write_png
 from shots.planner import Frame, plan_frames
 from shots.presets import Preset, apply_model_fixes, load_preset
@@ -46,6 +47,7 @@ def render_model(
     scene_choice: int | str | None = None,
     variant: str | None = None,
     on_frame: Callable[[RenderedFrame], None] | None = None,
+    on_warning: Callable[[str], None] | None = None,
 ) -> list[RenderedFrame]:
     """Render every frame of ``preset`` for ``model`` into ``out_dir`` as PNG files.
 
@@ -57,12 +59,18 @@ def render_model(
     scene_choice : glTF scene index or name (default: the file's default scene, else the first).
     variant : a KHR_materials_variants name to render instead of the default materials.
     on_frame : called after each frame is written (progress reporting).
+    on_warning : called with each loader warning and units/up-axis hint before rendering.
     """
     if not isinstance(preset, Preset):
         preset = load_preset(preset)
     if size is not None:
         preset = preset.with_image_size(*size)
-    scene = apply_model_fixes(load_scene(model, scene=scene_choice), preset)
+    loaded = load_scene(model, scene=scene_choice)
+    hints = model_hints(loaded) if preset.model.units == "m" and preset.model.up_axis == "y" else []
+    scene = apply_model_fixes(loaded, preset)
+    if on_warning is not None:
+        for warning in (*scene.warnings, *hints):
+            on_warning(warning)
     if variant is not None:
         scene = scene.with_variant(variant)
     frames = plan_frames(preset, scene)

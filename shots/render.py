@@ -4,13 +4,26 @@
     rgba = render_frame(prepared, camera, look)     # (h, w, 4) float32, premultiplied linear
 
 Everything per pixel happens in one numba kernel (``shots.kernels.shade.render_image``); this
-module only packs the look, the camera and the floor into the flat rows that kernel reads.
+module only packs the scene, the look, the camera and the floor into the flat arrays it reads.
 
-Image formation: ``look.samples`` camera samples per pixel on a jittered grid (a square count is
-stratified exactly), warped to a tent filter of radius 1 pixel (filter importance sampling,
-Ernst et al. 2006), equally weighted. One sample goes through the pixel centre. Every random
-number is a hash of (look.seed, pixel, sample, dimension): reruns are bit-identical and do not
-depend on the number of threads.
+Image formation
+    ``look.samples`` camera samples per pixel on a jittered grid (a square count is stratified
+    exactly), warped to a tent filter of radius 1 pixel (filter importance sampling, Ernst et
+    al. 2006), equally weighted; a single sample goes through the pixel centre. Every random
+    number is a hash of (look.seed, pixel, sample, dimension): reruns are bit-identical and do
+    not depend on the number of threads.
+Sample counts per hit
+    ``area_light_samples`` (shadow rays per area light), ``glossy_samples`` (reflection rays of a
+    glossy surface) and the floor's contact rays (at least 4) are counts for one camera sample.
+    With several camera samples the pixel's samples share one stratified set: each hit casts
+    ceil(count / samples) rays in its own cells of a pixel-wide grid, so a pixel still gets at
+    least max(count, samples) well-spread rays for the cost of about one per hit.
+Approximations (Whitted-style, documented so nobody mistakes them for bugs)
+    Diffuse environment light is its 9-term SH irradiance, unshadowed except by the occlusion
+    texture. Glossy lobes rougher than 0.3 (dielectric) to 0.6 (metal) take the SH-blurred
+    environment along the mirror direction instead of rays. Shadow rays pass transmissive
+    surfaces tinted, without refraction (no caustics). Rays leaving glass see the environment,
+    not the background. The shadow catcher counts the sky as even for its contact shadow.
 """
 
 from __future__ import annotations
@@ -57,6 +70,7 @@ LIGHT_KINDS = {
     SPOT: lk.KIND_SPOT,
     AREA: lk.KIND_AREA,
 }
+SHADOW_NOISE_FLOOR = 0.05  # shadow-catcher alpha below this is sampling noise (see below)
 MIN_CONTACT_SAMPLES = 4  # environment rays per shadow-catcher hit (soft contact shadow)
 
 
@@ -200,8 +214,11 @@ def background_colours(look: Look) -> np.ndarray:
     return np.stack([top, bottom])
 
 
-def pack_frame(camera: Camera, look: Look, see_through: bool, sh: np.ndarray) -> np.ndarray:
-    """(N_FRAME,) float64: camera, image and sampling settings, background, SH irradiance."""
+def pack_frame(
+    camera: Camera, look: Look, see_through: bool, sh: np.ndarray, bounds: np.ndarray
+) -> np.ndarray:
+    """(N_FRAME,) float64: camera, image and sampling settings, background, SH irradiance and
+    the scene's (2, 3) bounds."""
     row = np.zeros(layout.N_FRAME, np.float64)
     row[layout.F_EYE : layout.F_EYE + 3] = camera.eye
     basis = camera.basis()
@@ -227,6 +244,8 @@ def pack_frame(camera: Camera, look: Look, see_through: bool, sh: np.ndarray) ->
     row[layout.F_BG_BOTTOM : layout.F_BG_BOTTOM + 3] = colours[1]
     row[layout.F_SH : layout.F_SH + 27] = np.asarray(sh, np.float64).ravel()
     row[layout.F_ENV_ROTATION] = look.environment.rotation
+    row[layout.F_BOX_LO : layout.F_BOX_LO + 3] = bounds[0]
+    row[layout.F_BOX_HI : layout.F_BOX_HI + 3] = bounds[1]
     return row
 
 
@@ -250,11 +269,27 @@ def render_frame(prepared: PreparedScene, camera: Camera, look: Look) -> np.ndar
     radiance, sh = _environment(look.environment)
     shade.render_image(
         out,
-        pack_frame(camera, look, prepared.see_through, sh),
+        pack_frame(camera, look, prepared.see_through, sh, prepared.bounds),
         pack_lights(look.lights),
         radiance,
         pack_ground(look.ground, prepared.bounds, camera),
         tuple(prepared.bvh),
         prepared.packed,
     )
+    if look.ground.kind == "shadow_catcher":
+        lift_shadow_noise_floor(out)
     return out
+
+
+def lift_shadow_noise_floor(rgba: np.ndarray, floor: float = SHADOW_NOISE_FLOOR) -> None:
+    """Remove faint shadow-catcher speckle in place: pure-shadow pixels (black, partly opaque)
+    get alpha (a − floor)/(1 − floor), clamped at 0.
+
+    A soft light far from the product leaves a few percent of occlusion on distant floor that a
+    handful of shadow rays per pixel resolves only as scattered dots; a catalog background must
+    be clean, and the contact shadow (tens of percent) keeps its shape.
+    """
+    pure_shadow = rgba[..., :3].max(axis=-1) <= 0.0
+    alpha = rgba[..., 3]
+    lifted = np.clip((alpha - floor) / (1.0 - floor), 0.0, 1.0)
+    alpha[pure_shadow] = lifted[pure_shadow]

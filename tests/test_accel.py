@@ -25,7 +25,7 @@ from shots.accel import (
     sah_cost,
 )
 from shots.kernels import bvh_build
-from shots.kernels.bvh_build import MAX_LEAF
+from shots.kernels.bvh_build import LINK_ROW, MAX_LEAF
 from shots.kernels.traverse import any_hit_one, closest_hit_one, new_stack
 
 REL_T = 1e-5  # "same triangle; distance within 1e-5 relative" (task brief)
@@ -82,7 +82,7 @@ MESHES = {
 }
 
 
-def test_rays(positions, triangles, seed=0):
+def sample_rays(positions, triangles, seed=0):
     """>= 10,000 seeded rays: random (many miss, many start inside the bounds), aimed at
     triangle interiors, aimed at edges (grazing), and starting inside the bounds."""
     rng = np.random.default_rng(seed)
@@ -116,7 +116,6 @@ def test_rays(positions, triangles, seed=0):
     return origins, directions
 
 
-test_rays.__test__ = False  # a helper, not a test
 
 
 def assert_same_hits(positions, triangles, origins, directions, ours, ref):
@@ -141,7 +140,7 @@ def assert_same_hits(positions, triangles, origins, directions, ours, ref):
 @pytest.mark.parametrize("name", MESHES)
 def test_closest_hit_equals_brute_force(name):
     positions, triangles = MESHES[name]
-    origins, directions = test_rays(positions, triangles)
+    origins, directions = sample_rays(positions, triangles)
     bvh = build_bvh(positions, triangles)
     ours = intersect_closest(bvh, origins, directions, 0.0, np.inf)
     ref = naive.closest_hits(positions, triangles, origins, directions)
@@ -163,7 +162,7 @@ def test_closest_hit_equals_brute_force(name):
 @pytest.mark.parametrize("name", MESHES)
 def test_any_hit_equals_brute_force(name):
     positions, triangles = MESHES[name]
-    origins, directions = test_rays(positions, triangles, seed=7)
+    origins, directions = sample_rays(positions, triangles, seed=7)
     t_all = naive.all_hits(positions, triangles, origins, directions)
     # t_min, t_max halfway between consecutive hits (or 0 / past the last), so no hit sits on a
     # bound and the brute-force answer is unambiguous.
@@ -202,7 +201,7 @@ def test_agrees_with_trimesh(subdivisions):
     # Independent library: trimesh.ray.ray_triangle.RayMeshIntersector (first hit per ray).
     m = trimesh.creation.icosphere(subdivisions=subdivisions)
     positions, triangles = m.vertices.astype(np.float32), m.faces.astype(np.int32)
-    origins, directions = test_rays(positions, triangles, seed=11)
+    origins, directions = sample_rays(positions, triangles, seed=11)
     origins, directions = origins[::5], directions[::5]
     tri_ref, ray_ref = RayMeshIntersector(m).intersects_id(
         origins, directions, multiple_hits=False
@@ -277,7 +276,7 @@ def test_watertight_grid(oblique):
 @pytest.mark.parametrize("threads", [1, 2])
 def test_results_independent_of_thread_count(threads):
     positions, triangles = MESHES["displaced grid"]
-    origins, directions = test_rays(positions, triangles, seed=21)
+    origins, directions = sample_rays(positions, triangles, seed=21)
     ref_bvh = build_bvh(positions, triangles)
     ref = intersect_closest(ref_bvh, origins, directions)
     ref_any = intersect_any(ref_bvh, origins, directions, 0.0, 1.0)
@@ -370,7 +369,7 @@ def test_sah_constants_shape_the_tree():
     # Both trees hold every triangle exactly once and give the same hits.
     for bvh in (cheap, dear):
         assert np.array_equal(np.sort(bvh.tri_ids), np.arange(len(triangles)))
-    origins, directions = test_rays(positions, triangles, seed=2)
+    origins, directions = sample_rays(positions, triangles, seed=2)
     a = intersect_closest(cheap, origins, directions)
     b = intersect_closest(dear, origins, directions)
     assert np.mean(a[1] == b[1]) > 0.999
@@ -384,7 +383,7 @@ def test_child_boxes_contain_their_triangles():
     lo_hi = bvh.tri_verts.reshape(-1, 3, 3)
     for node in range(len(bvh.node_links)):
         for j in range(4):
-            link = bvh.node_links[node, j]
+            link = bvh.node_links[node, LINK_ROW, j]
             box = bvh.node_bounds[node, :6, j]
             if link < 0:
                 code = ~link
@@ -445,7 +444,7 @@ def test_batches_equal_single_ray_functions():
     # The batch kernels interleave several rays per thread; each ray must still get exactly the
     # single-ray answer (the shading kernels call those directly).
     positions, triangles = MESHES["furniture"]
-    origins, directions = test_rays(positions, triangles, seed=31)
+    origins, directions = sample_rays(positions, triangles, seed=31)
     t_max = np.random.default_rng(2).uniform(0.0, 3.0, len(origins)).astype(np.float32)
     bvh = build_bvh(positions, triangles)
     *one, occluded_one = _trace_one_by_one(*bvh, origins, directions, t_max)
@@ -469,7 +468,7 @@ def binary_depth(positions, triangles):
 def test_deep_tree_from_lopsided_geometry():
     # Triangles at x = 2^k: binned SAH can only peel a few off the far end per split, so the tree
     # gets about ten times deeper than a balanced one (log2 120 = 7). It must stay within the
-    # build's depth bound (SAH down to depth 64, then median splits), which sizes the traversal
+    # build's depth bound (SAH down to depth 64, then halving splits), which sizes the traversal
     # stack, and still give brute-force answers.
     n = 120
     x = 2.0 ** np.arange(n)
@@ -493,10 +492,10 @@ def test_deep_tree_from_lopsided_geometry():
 
 
 def test_bvh_survives_pickling():
-    # Worker processes receive the BVH pickled; node_links then no longer aliases node_bounds
-    # (it arrives as its own copy), and tracing must give the same answers.
+    # Worker processes receive the BVH pickled: node_links then arrives as its own copy instead of
+    # a view of node_bounds, and tracing must give the same answers.
     positions, triangles = MESHES["icosphere"]
-    origins, directions = test_rays(positions, triangles, seed=41)
+    origins, directions = sample_rays(positions, triangles, seed=41)
     bvh = build_bvh(positions, triangles)
     copy = pickle.loads(pickle.dumps(bvh))
     for a, b in zip(intersect_closest(bvh, origins, directions),

@@ -124,6 +124,7 @@ def test_vndf_sampling_matches_its_density():
     d = np.vectorize(brdf.ggx_d)(h[..., 2], alpha)
     pdf = brdf.smith_g1(v[2], alpha) * np.maximum(h @ v, 0) * d / v[2] * np.sin(t)
     pdf *= (math.pi / 2 / 400) * (2 * math.pi / 400)
-    expected = np.array([pdf[(theta >= a) & (theta < b)].sum() for a, b in zip(edges, edges[1:], strict=False)])
+    bands = zip(edges[:-1], edges[1:], strict=True)
+    expected = np.array([pdf[(theta >= a) & (theta < b)].sum() for a, b in bands])
     assert expected.sum() == pytest.approx(1.0, abs=2e-3)
     assert np.abs(counts / len(samples) - expected).max() < 0.01

@@ -7,7 +7,7 @@ import png
 from PIL import Image
 
 from shots.colour import linear_to_srgb, pbr_neutral, quantize, srgb_to_linear, to_display
-from shots.output import png_bytes, write_png
+from shots.output import CURRENT_UMASK, png_bytes, write_png
 
 
 def test_srgb_reference_values():
@@ -71,3 +71,5 @@ def test_write_png_leaves_no_temporary_file(tmp_path):
     target = tmp_path / "sub" / "frame.png"
     write_png(target, np.zeros((3, 3, 4), np.float32))
     assert [p.name for p in target.parent.iterdir()] == ["frame.png"]
+    # Readable like any other file the user writes (mkstemp alone would leave it 0600).
+    assert target.stat().st_mode & 0o777 == 0o666 & ~CURRENT_UMASK

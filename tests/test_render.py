@@ -88,7 +88,7 @@ def test_kernel_camera_rays_match_camera_module():
         Camera(eye=(1, 5, 1), target=(0, 0, 0), up=(0, 1, 0), width=16, height=24,
                kind=ORTHOGRAPHIC, ymag=0.7),
     ]:  # fmt: skip
-        row = pack_frame(camera, look(), False, np.zeros((9, 3)))
+        row = pack_frame(camera, look(), False, np.zeros((9, 3)), np.zeros((2, 3)))
         px = np.array([0.5, 7.25, 15.5, 3.0])
         py = np.array([0.5, 11.0, 19.5, 2.75])
         origins, directions = camera.rays_at(px, py)

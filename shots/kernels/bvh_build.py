@@ -30,9 +30,10 @@ import numpy as np
 from numba import njit, prange
 
 WIDTH = 4
+NODE_ROWS, LINK_ROW = 8, 6  # node record: 6 rows of child bounds, the links, padding
 LEAF_BITS = 4
 MAX_LEAF = (1 << LEAF_BITS) - 1  # triangles per leaf that the link encoding can hold
-SAH_MAX_DEPTH = 64  # below this depth, object-median splits bound the tree depth
+SAH_MAX_DEPTH = 64  # below this depth, halving splits bound the tree depth
 TASK_STACK = 256
 
 
@@ -71,8 +72,10 @@ def half_area(box):
 
 @njit(cache=True)
 def empty_box(box):
-    box[:3] = np.inf
-    box[3:] = -np.inf
+    """Set a (min xyz, max xyz) box to the empty one, ready to grow."""
+    for j in range(3):
+        box[j] = np.inf
+        box[3 + j] = -np.inf
 
 
 @njit(cache=True)
@@ -125,17 +128,22 @@ def clear_bins(counts, boxes, bins):
 
 
 @njit(cache=True, parallel=True)
-def bin_prims_parallel(prims, start, end, cbox, scale, bins, counts, boxes):
-    """``bin_prims`` over PAR_CHUNKS chunks in parallel; counts and min/max merge exactly, so
-    the bins are identical to the serial ones."""
-    part_counts = np.zeros((PAR_CHUNKS, 3, bins), np.int64)
-    part_boxes = np.empty((PAR_CHUNKS, 3, bins, 6), np.float32)
+def bin_chunks(prims, start, end, cbox, scale, bins, part_counts, part_boxes):
+    """``bin_prims`` on PAR_CHUNKS chunks of prims[start:end] in parallel, one set of bins each."""
     size = (end - start + PAR_CHUNKS - 1) // PAR_CHUNKS
     for c in prange(PAR_CHUNKS):
         clear_bins(part_counts[c], part_boxes[c], bins)
         lo = start + c * size
         bin_prims(prims, lo, min(end, lo + size), cbox, scale, bins, part_counts[c],
                   part_boxes[c])  # fmt: skip
+
+
+@njit(cache=True)
+def bin_prims_parallel(prims, start, end, cbox, scale, bins, counts, boxes, part_counts,
+                       part_boxes):  # fmt: skip
+    """``bin_prims`` over fixed chunks in parallel, then merged: counts and min/max merge
+    exactly, so the bins are identical to the serial ones."""
+    bin_chunks(prims, start, end, cbox, scale, bins, part_counts, part_boxes)
     for c in range(PAR_CHUNKS):
         for a in range(3):
             for b in range(bins):
@@ -211,19 +219,10 @@ def partition(prims, order, start, end, axis, c_lo, scale, bins, plane, boxes):
 
 
 @njit(cache=True)
-def median_split(prims, order, start, end, boxes):
-    """Sort prims[start:end] by centre along the widest centre axis; return the middle. Used when
-    the centres coincide or the tree got too deep for SAH."""
-    cbox = np.empty(6, np.float32)
-    box = np.empty(6, np.float32)
-    range_bounds(prims, start, end, box, cbox)
-    axis = 0
-    for a in range(1, 3):
-        if cbox[3 + a] - cbox[a] > cbox[3 + axis] - cbox[axis]:
-            axis = a
-    idx = np.argsort(prims[start:end, P_C + axis], kind="mergesort") + start  # stable
-    prims[start:end] = prims[idx]
-    order[start:end] = order[idx]
+def halving_split(prims, start, end, boxes):
+    """Split prims[start:end] in two halves as they lie; return the middle. Used when the
+    centres coincide (no plane separates them) or the tree got too deep for SAH: halving bounds
+    the depth."""
     mid = (start + end) // 2
     range_bounds(prims, start, mid, boxes[0], boxes[1])
     range_bounds(prims, mid, end, boxes[2], boxes[3])
@@ -232,9 +231,10 @@ def median_split(prims, order, start, end, boxes):
 
 @njit(cache=True)
 def split_node(prims, order, start, end, depth, box, cbox, bins, c_trav, c_isect, max_leaf,
-               counts, bin_boxes, scratch, scale, parallel_bins):  # fmt: skip
+               counts, bin_boxes, scratch, scale, part_counts, part_boxes):  # fmt: skip
     """Decide how to split one node. Returns the middle index, or -1 for a leaf; the children's
-    boxes and centre bounds land in scratch[0:4]."""
+    boxes and centre bounds land in scratch[0:4]. Binning runs in parallel when per-chunk bins
+    ``part_counts``, ``part_boxes`` are given (non-empty)."""
     count = end - start
     if count <= 1:
         return -1
@@ -243,8 +243,9 @@ def split_node(prims, order, start, end, depth, box, cbox, bins, c_trav, c_isect
         bin_scales(cbox, bins, scale)
         if scale[0] + scale[1] + scale[2] > 0.0:
             clear_bins(counts, bin_boxes, bins)
-            if parallel_bins:
-                bin_prims_parallel(prims, start, end, cbox, scale, bins, counts, bin_boxes)
+            if part_counts.shape[0] > 0:
+                bin_prims_parallel(prims, start, end, cbox, scale, bins, counts, bin_boxes,
+                                   part_counts, part_boxes)  # fmt: skip
             else:
                 bin_prims(prims, start, end, cbox, scale, bins, counts, bin_boxes)
             area = half_area(box)
@@ -259,7 +260,19 @@ def split_node(prims, order, start, end, depth, box, cbox, bins, c_trav, c_isect
                                  plane, scratch)  # fmt: skip
     if count <= max_leaf:
         return -1
-    return median_split(prims, order, start, end, scratch)
+    return halving_split(prims, start, end, scratch)
+
+
+@njit(cache=True)
+def copy6(dst, src):
+    """dst[:6] = src[:6] (explicit: slice assignment is slow to compile)."""
+    for j in range(6):
+        dst[j] = src[j]
+
+
+@njit(cache=True)
+def set3(dst, a, b, c):
+    dst[0], dst[1], dst[2] = a, b, c
 
 
 @njit(cache=True)
@@ -271,43 +284,56 @@ def build_subtree(prims, order, root, start, end, depth, box, cbox, first_free, 
     bin_boxes = np.empty((3, bins, 6), np.float32)
     scratch = np.empty((6, max(bins, 6)), np.float32)
     scale = np.empty(3, np.float64)
+    no_counts = np.zeros((0, 3, bins), np.int64)  # serial binning
+    no_boxes = np.zeros((0, 3, bins, 6), np.float32)
     task_node = np.empty(TASK_STACK, np.int64)
     task_range = np.empty((TASK_STACK, 3), np.int64)  # start, end, depth
     task_box = np.empty((TASK_STACK, 12), np.float32)  # box, centre bounds
     task_node[0] = root
-    task_range[0] = (start, end, depth)
-    task_box[0, :6] = box
-    task_box[0, 6:] = cbox
+    set3(task_range[0], start, end, depth)
+    copy6(task_box[0, :6], box)
+    copy6(task_box[0, 6:], cbox)
     sp = 1
     free = first_free
     while sp > 0:
         sp -= 1
         node = task_node[sp]
         lo, hi, d = task_range[sp, 0], task_range[sp, 1], task_range[sp, 2]
-        node_box[node] = task_box[sp, :6]
+        copy6(node_box[node], task_box[sp, :6])
         node_start[node] = lo
         node_count[node] = hi - lo
         mid = split_node(prims, order, lo, hi, d, task_box[sp, :6], task_box[sp, 6:], bins,
-                         c_trav, c_isect, max_leaf, counts, bin_boxes, scratch, scale, False)  # fmt: skip
+                         c_trav, c_isect, max_leaf, counts, bin_boxes, scratch, scale, no_counts,
+                         no_boxes)  # fmt: skip
         if mid < 0:
             continue
         node_left[node] = free
         node_count[node] = 0
         # Right child below left on the stack, so the left subtree is built first.
         task_node[sp] = free + 1
-        task_range[sp] = (mid, hi, d + 1)
-        task_box[sp, :6] = scratch[2, :6]
-        task_box[sp, 6:] = scratch[3, :6]
+        set3(task_range[sp], mid, hi, d + 1)
+        copy6(task_box[sp, :6], scratch[2, :6])
+        copy6(task_box[sp, 6:], scratch[3, :6])
         task_node[sp + 1] = free
-        task_range[sp + 1] = (lo, mid, d + 1)
-        task_box[sp + 1, :6] = scratch[0, :6]
-        task_box[sp + 1, 6:] = scratch[1, :6]
+        set3(task_range[sp + 1], lo, mid, d + 1)
+        copy6(task_box[sp + 1, :6], scratch[0, :6])
+        copy6(task_box[sp + 1, 6:], scratch[1, :6])
         sp += 2
         free += 2
     return free
 
 
 @njit(cache=True, parallel=True)
+def build_subtrees(prims, order, sub_node, sub_range, sub_box, first, bins, c_trav, c_isect,
+                   max_leaf, node_box, node_left, node_start, node_count):  # fmt: skip
+    """Build every collected subtree, in parallel (each owns its triangles and node slots)."""
+    for k in prange(sub_node.shape[0]):
+        build_subtree(prims, order, sub_node[k], sub_range[k, 0], sub_range[k, 1],
+                      sub_range[k, 2], sub_box[k, :6], sub_box[k, 6:], first[k], bins, c_trav,
+                      c_isect, max_leaf, node_box, node_left, node_start, node_count)  # fmt: skip
+
+
+@njit(cache=True)
 def build_binary(prims, bins, c_trav, c_isect, max_leaf):
     """Binned-SAH binary BVH over triangle records (reordered in place into leaf order).
 
@@ -331,19 +357,21 @@ def build_binary(prims, bins, c_trav, c_isect, max_leaf):
     box = np.empty(6, np.float32)
     cbox = np.empty(6, np.float32)
     range_bounds(prims, 0, n, box, cbox)
-    # Top: split big nodes (breadth first); collect the subtrees left to build.
+    # Top: split big nodes (the leftmost first); collect the subtrees left to build.
     counts = np.zeros((3, bins), np.int64)
     bin_boxes = np.empty((3, bins, 6), np.float32)
     scratch = np.empty((6, max(bins, 6)), np.float32)
     scale = np.empty(3, np.float64)
+    part_counts = np.zeros((PAR_CHUNKS, 3, bins), np.int64)
+    part_boxes = np.empty((PAR_CHUNKS, 3, bins, 6), np.float32)
     n_sub_max = 4 * (n // PAR_MIN) + 16  # lopsided splits stop the top phase early
     sub_node = np.empty(n_sub_max, np.int64)
     sub_range = np.empty((n_sub_max, 3), np.int64)
     sub_box = np.empty((n_sub_max, 12), np.float32)
     sub_node[0] = 0
-    sub_range[0] = (0, n, 0)
-    sub_box[0, :6] = box
-    sub_box[0, 6:] = cbox
+    set3(sub_range[0], 0, n, 0)
+    copy6(sub_box[0, :6], box)
+    copy6(sub_box[0, 6:], cbox)
     n_sub = 1
     free = 1
     k = 0
@@ -353,11 +381,12 @@ def build_binary(prims, bins, c_trav, c_isect, max_leaf):
             k += 1
             continue
         node = sub_node[k]
-        node_box[node] = sub_box[k, :6]
+        copy6(node_box[node], sub_box[k, :6])
         node_start[node] = lo
         node_count[node] = hi - lo
         mid = split_node(prims, order, lo, hi, d, sub_box[k, :6], sub_box[k, 6:], bins, c_trav,
-                         c_isect, max_leaf, counts, bin_boxes, scratch, scale, True)  # fmt: skip
+                         c_isect, max_leaf, counts, bin_boxes, scratch, scale, part_counts,
+                         part_boxes)  # fmt: skip
         if mid < 0:
             k += 1
             continue
@@ -365,24 +394,23 @@ def build_binary(prims, bins, c_trav, c_isect, max_leaf):
         node_count[node] = 0
         # Replace task k by its left child and append the right one.
         sub_node[k] = free
-        sub_range[k] = (lo, mid, d + 1)
-        sub_box[k, :6] = scratch[0, :6]
-        sub_box[k, 6:] = scratch[1, :6]
+        set3(sub_range[k], lo, mid, d + 1)
+        copy6(sub_box[k, :6], scratch[0, :6])
+        copy6(sub_box[k, 6:], scratch[1, :6])
         sub_node[n_sub] = free + 1
-        sub_range[n_sub] = (mid, hi, d + 1)
-        sub_box[n_sub, :6] = scratch[2, :6]
-        sub_box[n_sub, 6:] = scratch[3, :6]
+        set3(sub_range[n_sub], mid, hi, d + 1)
+        copy6(sub_box[n_sub, :6], scratch[2, :6])
+        copy6(sub_box[n_sub, 6:], scratch[3, :6])
         n_sub += 1
         free += 2
-    # Subtrees in parallel: subtree k may use 2·count - 2 slots from first[k].
+    # Subtree k may use 2·count - 2 slots from first[k].
     first = np.empty(n_sub + 1, np.int64)
     first[0] = free
     for k in range(n_sub):
         first[k + 1] = first[k] + max(2 * (sub_range[k, 1] - sub_range[k, 0]) - 2, 0)
-    for k in prange(n_sub):
-        build_subtree(prims, order, sub_node[k], sub_range[k, 0], sub_range[k, 1],
-                      sub_range[k, 2], sub_box[k, :6], sub_box[k, 6:], first[k], bins, c_trav,
-                      c_isect, max_leaf, node_box, node_left, node_start, node_count)  # fmt: skip
+    build_subtrees(prims, order, sub_node[:n_sub], sub_range[:n_sub], sub_box[:n_sub], first,
+                   bins, c_trav, c_isect, max_leaf, node_box, node_left, node_start,
+                   node_count)  # fmt: skip
     used = first[n_sub]
     return order, node_box[:used], node_left[:used], node_start[:used], node_count[:used]
 

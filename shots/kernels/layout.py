@@ -8,7 +8,8 @@ called for every ray.
     faces     (n, 4) int32          vertex indices i0 i1 i2, material row
     materials (m, N_MAT) float32    the ``shots.scene`` P_* columns, then per texture slot:
                                     texture index, texcoord set, uv affine a00 a01 a02 a10 a11 a12
-    frame     (N_FRAME,) float64    camera, settings, background, SH irradiance, env rotation
+    frame     (N_FRAME,) float64    camera, settings, background, SH irradiance, env rotation,
+                                    scene bounds
     work      (N_WORK,) float64     per-thread scratch: interpolated uvs, a texel, an env lookup,
                                     the sample's accumulator and its random-dimension counter
 """
@@ -37,7 +38,8 @@ F_MAX_DEPTH, F_SEED, F_SEE_THROUGH, F_BACKGROUND, F_CONTACT_SAMPLES = 21, 22, 23
 F_BG_TOP, F_BG_BOTTOM = 26, 29  # linear rgb
 F_SH = 32  # 9 × 3 SH irradiance coefficients, row-major
 F_ENV_ROTATION = 59
-N_FRAME = 60
+F_BOX_LO, F_BOX_HI = 60, 63  # the scene's bounding box (shadow rays that miss it skip the BVH)
+N_FRAME = 66
 BG_TRANSPARENT, BG_SOLID, BG_GRADIENT, BG_ENVIRONMENT = 0, 1, 2, 3
 
 # --- work ------------------------------------------------------------------------------------

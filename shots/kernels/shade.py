@@ -10,14 +10,16 @@ Whitted-style recursion, unrolled onto a small per-thread ray stack. At each hit
   SH-blurred environment along the mirror direction instead (tracing them mostly adds noise);
 - transmission: a straight-through ray for thin walls, Snell refraction with Beer–Lambert
   absorption over the traced distance for volumes (KHR_materials_transmission / _volume);
-- coverage: BLEND surfaces and the shadow catcher continue the camera ray behind them.
+- coverage: BLEND surfaces continue the camera ray behind them; the shadow catcher writes its
+  shadow as alpha over the background.
 
 Inputs are few wide arrays (``shots.kernels.layout``); the BVH and the scene go as tuples:
     bvh = (node_bounds, node_links, tri_verts, tri_ids)          shots.accel.Bvh
     scene = (verts, faces, materials, texels, tex_info)          packed by shots.render
-Everything is borrowed (``shots.kernels.borrow``) at the top of each parallel work item: the
-helpers are called per ray, and counting references to their array arguments cost more than
-the ray queries.
+Everything is borrowed (``shots.kernels.borrow``) at the top of each parallel work item and the
+helpers are compiled without reference counting (``_nrt=False``; none of them allocates): they
+run per ray, and counting references to their array arguments cost more than the ray queries.
+Pixels are independent: tiles are dealt to work items round-robin, each with its own scratch.
 """
 
 from __future__ import annotations
@@ -59,6 +61,8 @@ from shots.kernels.layout import (
     F_BACKGROUND,
     F_BG_BOTTOM,
     F_BG_TOP,
+    F_BOX_HI,
+    F_BOX_LO,
     F_CONTACT_SAMPLES,
     F_ENV_ROTATION,
     F_EYE,
@@ -146,6 +150,7 @@ R_START = 16  # (3) where the ray's medium segment began: its un-offset surface 
 N_RAY = 19
 STACK_RAYS = 96  # the last row holds the ray being traced
 
+CONTACT_REACH = 0.25  # contact-shadow rays reach this fraction of the model's box diagonal
 MIRROR_ROUGHNESS = 0.03  # below: one ideal mirror ray (α ≤ 1e-3, a delta in practice)
 # At and above these roughnesses a lobe is taken as blurred environment light instead of traced:
 # a dielectric reflects only ~4 % and its rough sheen hides in noise, a metal shows it all.
@@ -304,7 +309,7 @@ def find_surface(bvh, scene, ground, ox, oy, oz, dx, dy, dz, t_min, camera, surf
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def shadow_ray(bvh, scene, ground, see_through, ox, oy, oz, dx, dy, dz, t_max, surf, work,
+def shadow_ray(frame, bvh, scene, ground, see_through, ox, oy, oz, dx, dy, dz, t_max, surf, work,
                   tstack):  # fmt: skip
     """Light let through along a shadow ray (origin already offset) up to ``t_max``.
 
@@ -410,8 +415,8 @@ def eval_bsdf(surf, vx, vy, vz, lx, ly, lz):
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sample, bvh, scene,
-                 ground, see_through, surf2, work, tstack):  # fmt: skip
+def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sample, frame, bvh,
+                 scene, ground, see_through, surf2, work, tstack):  # fmt: skip
     """Reflected radiance from all look lights with shadow rays; returns r, g, b.
 
     An area light gets ``spread_count(area_samples, spp)`` stratified shadow rays here, their
@@ -440,7 +445,7 @@ def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sampl
                 continue
             ox, oy, oz = offset_point(surf, 1.0)
             t_max = np.inf if dist == np.inf else dist * (1.0 - 1e-5)
-            tr, tg, tb = shadow_ray(bvh, scene, ground, see_through, ox, oy, oz, wx, wy, wz, t_max,
+            tr, tg, tb = shadow_ray(frame, bvh, scene, ground, see_through, ox, oy, oz, wx, wy, wz, t_max,
                                        surf2, work, tstack)  # fmt: skip
             lr += fr * tr
             lg += fg * tg
@@ -478,7 +483,7 @@ def shadow_amount(surf, lights, area_samples, contact_samples, spp, seed, pixel,
             if e <= 0.0:
                 continue
             t_max = np.inf if dist == np.inf else dist * (1.0 - 1e-5)
-            tr, tg, tb = shadow_ray(bvh, scene, ground, see_through, ox, oy, oz, wx, wy, wz, t_max,
+            tr, tg, tb = shadow_ray(frame, bvh, scene, ground, see_through, ox, oy, oz, wx, wy, wz, t_max,
                                        surf2, work, tstack)  # fmt: skip
             full += e
             lit += e * luminance(tr, tg, tb)
@@ -491,6 +496,13 @@ def shadow_amount(surf, lights, area_samples, contact_samples, spp, seed, pixel,
         t1x, t1y, t1z, t2x, t2y, t2z = orthonormal_basis(nx, ny, nz)
         n = spread_count(contact_samples, spp)
         key = pixel_key(seed, pixel, lights.shape[0])
+        # Only nearby occluders darken the floor this way: an unbounded reach lets distant floor
+        # points catch the product with a rare grazing ray, which speckles the whole floor.
+        reach = CONTACT_REACH * math.sqrt(
+            (frame[F_BOX_HI] - frame[F_BOX_LO]) ** 2
+            + (frame[F_BOX_HI + 1] - frame[F_BOX_LO + 1]) ** 2
+            + (frame[F_BOX_HI + 2] - frame[F_BOX_LO + 2]) ** 2
+        )
         seen = 0.0
         for s in range(n):
             r1, r2 = next_pair(seed, pixel, sample, work)
@@ -499,8 +511,8 @@ def shadow_amount(surf, lights, area_samples, contact_samples, spp, seed, pixel,
             wx = lx * t1x + ly * t2x + lz * nx
             wy = lx * t1y + ly * t2y + lz * ny
             wz = lx * t1z + ly * t2z + lz * nz
-            tr, tg, tb = shadow_ray(bvh, scene, ground, see_through, ox, oy, oz, wx, wy, wz,
-                                       np.inf, surf2, work, tstack)  # fmt: skip
+            tr, tg, tb = shadow_ray(frame, bvh, scene, ground, see_through, ox, oy, oz, wx, wy, wz,
+                                       reach, surf2, work, tstack)  # fmt: skip
             seen += luminance(tr, tg, tb)
         full += e_env
         lit += e_env * seen / n
@@ -562,7 +574,8 @@ def shade_hit(surf, ray, t_hit, frame, lights, env_map, bvh, scene, ground, pixe
     spp = int(frame[F_SAMPLES])
     area_samples = int(frame[F_AREA_SAMPLES]) if depth == 0 else 1
     lr, lg, lb = direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sample,
-                              bvh, scene, ground, see_through, surf2, work, tstack)  # fmt: skip
+                              frame, bvh, scene, ground, see_through, surf2, work,
+                              tstack)  # fmt: skip
     work[W_ACC + 0] += wr * (lr + under * surf[S_EM_R])
     work[W_ACC + 1] += wg * (lg + under * surf[S_EM_G])
     work[W_ACC + 2] += wb * (lb + under * surf[S_EM_B])
@@ -871,5 +884,7 @@ def render_image(out, frame, lights, env_map, ground, bvh, scene):
                                      b_env, b_bvh, b_scene, b_ground, pixel, s, stack, surf,
                                      surf2, work, tstack)  # fmt: skip
                     for c in range(4):
-                        out[j, i, c] = work[W_ACC + c] / spp
+                        value = work[W_ACC + c] / spp
+                        # a degenerate input (NaN normal, zero-area light) must not spread
+                        out[j, i, c] = value if math.isfinite(value) else 0.0
         owned[3][W_DIM] = 0.0  # the scratch stays owned (alive) until here, past its views

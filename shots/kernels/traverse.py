@@ -9,7 +9,8 @@ Single-ray device functions, callable from any numba kernel (including inside it
                       ox, oy, oz, dx, dy, dz, t_min, t_max, stack)
 
     node_bounds, node_links, tri_verts, tri_ids : the arrays of a ``shots.accel.Bvh`` (in that
-        field order, so a kernel can take ``*bvh``).
+        field order, so a kernel can take ``*bvh``; node_links is an int32 view of the node
+        records, child links in row LINK_ROW).
     ox .. dz : float, ray origin and direction (direction need not be unit length, but non-zero;
         t is measured in units of its length).
     t_min, t_max : float, hits are accepted for t_min <= t <= t_max.
@@ -35,7 +36,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
-from shots.kernels.bvh_build import LEAF_BITS, MAX_LEAF, WIDTH
+from shots.kernels.bvh_build import LEAF_BITS, LINK_ROW, MAX_LEAF, WIDTH
 from shots.kernels.simd import prefetch_row, slab4
 from shots.kernels.triangle import intersect_triangle, ray_shear
 
@@ -87,8 +88,8 @@ def visit_ordered(node_bounds, node_links, node, nx, ny, nz, fx, fy, fz, ix, iy,
     n_hit = int(t0 < INF32) + int(t1 < INF32) + int(t2 < INF32) + int(t3 < INF32)
     if n_hit == 0:
         return NONE, sp
-    l0, l1 = node_links[node, 0], node_links[node, 1]
-    l2, l3 = node_links[node, 2], node_links[node, 3]
+    l0, l1 = node_links[node, LINK_ROW, 0], node_links[node, LINK_ROW, 1]
+    l2, l3 = node_links[node, LINK_ROW, 2], node_links[node, LINK_ROW, 3]
     # Sorting network for four elements.
     t0, l0, t1, l1 = sort2(t0, l0, t1, l1)
     t2, l2, t3, l3 = sort2(t2, l2, t3, l3)
@@ -139,13 +140,13 @@ def visit_any(node_bounds, node_links, node, nx, ny, nz, fx, fy, fz, ix, iy, iz,
     """Push every child of an inner node that the ray enters (any hit will do: no order)."""
     t0, t1, t2, t3 = slab4(node_bounds, node, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
                            ROBUST)  # fmt: skip
-    stack[sp] = node_links[node, 0]
+    stack[sp] = node_links[node, LINK_ROW, 0]
     sp += int(t0 < INF32)
-    stack[sp] = node_links[node, 1]
+    stack[sp] = node_links[node, LINK_ROW, 1]
     sp += int(t1 < INF32)
-    stack[sp] = node_links[node, 2]
+    stack[sp] = node_links[node, LINK_ROW, 2]
     sp += int(t2 < INF32)
-    stack[sp] = node_links[node, 3]
+    stack[sp] = node_links[node, LINK_ROW, 3]
     sp += int(t3 < INF32)
     return sp
 
@@ -187,8 +188,7 @@ def closest_hit_one(
     t_lo, t_min = np.float32(t_min), np.float64(t_min)
     t_best, u_best, v_best, k_best = np.float64(t_max), 0.0, 0.0, -1
     t_hi = np.float32(t_best) * ROBUST
-    link, sp = visit_ordered(node_bounds, node_links, 0, nx, ny, nz, fx, fy, fz, ix, iy, iz,
-                             t_lo, t_hi, stack, 0)  # fmt: skip
+    link, sp = ROOT, 0
     while True:
         if link == NONE:
             link, sp = pop_ordered(stack, 0, sp, t_hi)
@@ -217,12 +217,12 @@ def any_hit_one(node_bounds, node_links, tri_verts, ox, oy, oz, dx, dy, dz, t_mi
     )
     t_lo, t_hi = np.float32(t_min), np.float32(t_max) * ROBUST
     t_min, t_max = np.float64(t_min), np.float64(t_max)
-    sp = visit_any(node_bounds, node_links, 0, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
-                   stack, 0)  # fmt: skip
+    stack[0] = ROOT
+    sp = 1
     while sp > 0:
         sp -= 1
         link = int(stack[sp])
-        if link > 0:
+        if link >= 0:
             sp = visit_any(node_bounds, node_links, link, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo,
                            t_hi, stack, sp)  # fmt: skip
         elif leaf_occludes(tri_verts, link, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min, t_max):
@@ -249,7 +249,7 @@ def prefetch_link(node_bounds, tri_verts, link):
     prefetch_row(tri_verts, max((~link) >> LEAF_BITS, 0))
 
 
-@njit(cache=True, error_model="numpy", inline="always")
+@njit(cache=True, error_model="numpy")
 def start_lane(lane, i, origins, directions, t_min, t_max, fs, ds, ls):
     """Load ray ``i`` into ``lane``; its traversal starts at the root."""
     fx, fy, fz, ix, iy, iz, nx, ny, nz, kx, ky, kz, okx, oky, okz, sx, sy, sz = prepare_ray(
@@ -324,9 +324,8 @@ def closest_hits_range(node_bounds, node_links, tri_verts, tri_ids, origins, dir
                 link = NONE
             ls[lane, I_LINK], ls[lane, I_SP] = link, sp
             if link == NONE and sp > lane * LANE_STACK:
-                prefetch_link(node_bounds, tri_verts, int(stack[sp - 1]))
-            else:
-                prefetch_link(node_bounds, tri_verts, link)
+                link = int(stack[sp - 1])  # what the next step will probably pop
+            prefetch_link(node_bounds, tri_verts, link)
 
 
 @njit(cache=True, error_model="numpy")
@@ -350,27 +349,23 @@ def any_hits_range(node_bounds, node_links, tri_verts, origins, directions, t_mi
             if i < 0:
                 continue
             link, sp, bottom = ls[lane, I_LINK], ls[lane, I_SP], lane * LANE_STACK
+            if link == ROOT:  # a fresh ray
+                ls[lane, I_LINK] = NONE
+            else:
+                sp -= 1
+                link = int(stack[sp])
             occluded = False
-            if link == ROOT:
-                sp = visit_any(node_bounds, node_links, ROOT, ls[lane, I_NX], ls[lane, I_NY],
+            if link >= 0:
+                sp = visit_any(node_bounds, node_links, link, ls[lane, I_NX], ls[lane, I_NY],
                                ls[lane, I_NZ], fs[lane, F_OX], fs[lane, F_OY], fs[lane, F_OZ],
                                fs[lane, F_IX], fs[lane, F_IY], fs[lane, F_IZ], fs[lane, F_TLO],
                                fs[lane, F_THI], stack, sp)  # fmt: skip
-                ls[lane, I_LINK] = NONE
-            elif sp > bottom:
-                sp -= 1
-                link = int(stack[sp])
-                if link > 0:
-                    sp = visit_any(node_bounds, node_links, link, ls[lane, I_NX], ls[lane, I_NY],
-                                   ls[lane, I_NZ], fs[lane, F_OX], fs[lane, F_OY], fs[lane, F_OZ],
-                                   fs[lane, F_IX], fs[lane, F_IY], fs[lane, F_IZ],
-                                   fs[lane, F_TLO], fs[lane, F_THI], stack, sp)  # fmt: skip
-                else:
-                    occluded = leaf_occludes(
-                        tri_verts, link, ls[lane, I_KX], ls[lane, I_KY], ls[lane, I_KZ],
-                        ds[lane, D_OKX], ds[lane, D_OKY], ds[lane, D_OKZ], ds[lane, D_SX],
-                        ds[lane, D_SY], ds[lane, D_SZ], ds[lane, D_TMIN], ds[lane, D_TMAX],
-                    )  # fmt: skip
+            else:
+                occluded = leaf_occludes(
+                    tri_verts, link, ls[lane, I_KX], ls[lane, I_KY], ls[lane, I_KZ],
+                    ds[lane, D_OKX], ds[lane, D_OKY], ds[lane, D_OKZ], ds[lane, D_SX],
+                    ds[lane, D_SY], ds[lane, D_SZ], ds[lane, D_TMIN], ds[lane, D_TMAX],
+                )  # fmt: skip
             if occluded or sp == bottom:  # done: write the result, take the next ray
                 out[i] = occluded
                 if following < last:
