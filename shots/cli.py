@@ -14,6 +14,7 @@ from typing import Annotated
 
 import typer
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from shots.batch.cli_command import batch
@@ -30,7 +31,7 @@ out = Console()
 
 def fail(message: str, code: int = 2) -> None:
     """Print one line on stderr and exit with ``code``."""
-    err.print(f"[bold red]error:[/] {message}", highlight=False, soft_wrap=True)
+    err.print(f"[bold red]error:[/] {escape(message)}", highlight=False, soft_wrap=True)
     raise typer.Exit(code)
 
 
@@ -80,7 +81,7 @@ def render(
             scene_choice=parse_scene(scene),
             variant=variant,
             on_frame=lambda r: out.print(f"wrote {r.path}", highlight=False),
-            on_warning=lambda text: err.print(f"[yellow]warning:[/] {text}", highlight=False),
+            on_warning=lambda text: err.print(f"[yellow]warning:[/] {escape(text)}", highlight=False),
         )
     except ShotsError as exc:
         fail(str(exc))
@@ -122,7 +123,7 @@ def plan(
         sys.stdout.write(json.dumps(rows, indent=1) + "\n")
         return
     for warning in loaded.warnings:
-        err.print(f"warning: {warning}", highlight=False)
+        err.print(f"warning: {escape(warning)}", highlight=False)
     table = Table(title=f"{preset} × {model.name}: {len(rows)} frames")
     for column in ("shot", "frame", "view", "eye", "target", "up", "lens", "size"):
         table.add_column(column)

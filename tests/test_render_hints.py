@@ -29,3 +29,5 @@ def test_centimetre_model_is_hinted_and_metre_model_is_not(tmp_path):
         )
         assert result.exit_code == 0, result.output
         assert ("centimetres" in result.output) is hinted, result.output
+        # The fix is shown literally (the console must not read "[model]" as a style tag).
+        assert ('[model] units = "cm"' in " ".join(result.output.split())) is hinted

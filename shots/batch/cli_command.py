@@ -12,6 +12,7 @@ from typing import Annotated
 
 import typer
 from rich.console import Console
+from rich.markup import escape
 
 from shots.errors import ShotsError
 
@@ -60,11 +61,11 @@ def batch(
             exr=exr, animations=formats, fps=fps, console=err,
         )
     except ShotsError as exc:
-        err.print(f"[bold red]error:[/] {exc}", highlight=False, soft_wrap=True)
+        err.print(f"[bold red]error:[/] {escape(str(exc))}", highlight=False, soft_wrap=True)
         raise typer.Exit(2) from None
     if quiet:
         for listed_as, reason in summary.failures:
-            err.print(f"[bold red]failed:[/] {listed_as}: {reason}", highlight=False,
+            err.print(f"[bold red]failed:[/] {escape(listed_as)}: {escape(reason)}", highlight=False,
                       soft_wrap=True)
     else:
         print_summary(summary, err)

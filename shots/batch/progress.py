@@ -12,6 +12,7 @@ import time
 from pathlib import Path
 
 from rich.console import Console
+from rich.markup import escape
 from rich.progress import (
     BarColumn,
     MofNCompleteColumn,
@@ -84,7 +85,7 @@ class Reporter:
     def note(self, message: str) -> None:
         """A line for people (not in quiet mode)."""
         if not self.quiet:
-            self.console.print(message, highlight=False, soft_wrap=True)
+            self.console.print(escape(message), highlight=False, soft_wrap=True)
 
     def event(self, kind: str, **fields) -> None:
         if self.log is None:
@@ -112,13 +113,13 @@ def print_summary(summary, console: Console) -> None:
                   str(summary.frames_failed), f"{len(summary.failures)} failed", end_section=True)
     console.print(table)
     for note in summary.notes:
-        console.print(note, highlight=False, soft_wrap=True)
+        console.print(escape(note), highlight=False, soft_wrap=True)
     for image, reasons in summary.flagged:
-        console.print(f"[yellow]flagged:[/] {image}: {'; '.join(reasons)}", highlight=False,
+        console.print(f"[yellow]flagged:[/] {escape(str(image))}: {escape('; '.join(reasons))}", highlight=False,
                       soft_wrap=True)
     if summary.report is not None:
         console.print(f"consistency report: {summary.report} "
                       f"({len(summary.flagged)} image(s) flagged)", highlight=False)
     for listed_as, reason in summary.failures:
-        console.print(f"[bold red]failed:[/] {listed_as}: {reason}", highlight=False,
+        console.print(f"[bold red]failed:[/] {escape(listed_as)}: {escape(reason)}", highlight=False,
                       soft_wrap=True)
