@@ -10,15 +10,17 @@ contact rays) through ``shots.accel`` batch queries, timing only those queries.
     overhead = frame time / ray time
 
 is what shading, texturing, secondary rays and orchestration cost on top of the visibility work a
-frame cannot avoid. Both are measured as CPU time of all threads (best of ``--repeat`` runs), which
-other programs on a shared machine disturb least; wall-clock figures are printed too. The last
-line is ``headline: overhead R``.
+frame cannot avoid. Both are measured as CPU time of all threads, which other programs on a shared
+machine disturb least, frame and rays interleaved in every repetition; the headline is the median
+of the per-repetition ratios. Wall-clock figures are printed too, with frames per minute for the
+thumbnail and a turntable preset. The last line is ``headline: overhead R``.
 """
 
 from __future__ import annotations
 
 import argparse
 import math
+import os
 import time
 from pathlib import Path
 
@@ -203,7 +205,8 @@ def main() -> None:
     parser.add_argument("model", nargs="?")
     parser.add_argument("--size", type=int, default=512)
     parser.add_argument("--preset", default="thumbnail")
-    parser.add_argument("--repeat", type=int, default=2, help="runs of each; the best counts")
+    parser.add_argument("--repeat", type=int, default=5, help="repetitions (medians count)")
+    parser.add_argument("--turntable", default="turntable-36", help="preset timed for frames/min")
     args = parser.parse_args()
 
     scene, name = load_model(args.model)
@@ -221,29 +224,53 @@ def main() -> None:
     render_frame(prepared, small, frame.look)
     time_rays(prepared, small, frame.look)
 
-    # best of a few runs of each, interleaved: the machine may be shared
-    frame_wall = frame_cpu = ray_wall = ray_cpu = math.inf
+    # frame and rays interleaved in every repetition: the machine may be shared
+    frame_wall, frame_cpu, ray_wall, ray_cpu = [], [], [], []
     for _ in range(args.repeat):
         t0, c0 = time.perf_counter(), time.process_time()
         render_frame(prepared, frame.camera, frame.look)
-        frame_wall = min(frame_wall, time.perf_counter() - t0)
-        frame_cpu = min(frame_cpu, time.process_time() - c0)
+        frame_wall.append(time.perf_counter() - t0)
+        frame_cpu.append(time.process_time() - c0)
         wall, cpu, primary, shadow = time_rays(prepared, frame.camera, frame.look)
-        ray_wall, ray_cpu = min(ray_wall, wall), min(ray_cpu, cpu)
+        ray_wall.append(wall)
+        ray_cpu.append(cpu)
+    ratios = np.divide(frame_cpu, ray_cpu)  # CPU time of all threads: least disturbed by load
+    med = np.median
     look = frame.look
-    overhead = frame_cpu / ray_cpu  # CPU time of all threads: least disturbed by other load
     print(f"model: {name} ({scene.triangle_count} triangles), preset {args.preset}, "
           f"{args.size}x{args.size}, {look.samples} samples/px, {len(look.lights)} lights, "
-          f"ground {look.ground.kind}, {numba.get_num_threads()} threads")  # fmt: skip
+          f"ground {look.ground.kind}, {numba.get_num_threads()} threads, "
+          f"load average {os.getloadavg()[0]:.2f}")  # fmt: skip
     print(f"prepare (BVH build): {prepare_seconds:.2f} s")
-    print(f"frame: {frame_wall:.2f} s wall, {frame_cpu:.2f} s CPU  "
-          f"({60.0 / frame_wall:.1f} frames per minute)")  # fmt: skip
+    print(f"frame: {med(frame_wall):.2f} s wall, {med(frame_cpu):.2f} s CPU (medians of "
+          f"{args.repeat})")  # fmt: skip
     print(f"rays alone: {primary / 1e6:.2f} M primary + {shadow / 1e6:.2f} M shadow in "
-          f"{ray_wall:.2f} s wall, {ray_cpu:.2f} s CPU "
-          f"({(primary + shadow) / ray_wall / 1e6:.1f} M rays/s)")  # fmt: skip
-    print(f"wall-clock ratio: {frame_wall / ray_wall:.2f}")
+          f"{med(ray_wall):.2f} s wall, {med(ray_cpu):.2f} s CPU "
+          f"({(primary + shadow) / med(ray_wall) / 1e6:.1f} M rays/s)")  # fmt: skip
+    print("overhead (frame CPU / ray CPU) per repetition: "
+          + " ".join(f"{r:.2f}" for r in ratios))  # fmt: skip
+    print(f"wall-clock ratio: {med(frame_wall) / med(ray_wall):.2f}")
+    print(f"frames per minute: {args.preset} {60.0 / med(frame_wall):.1f}, "
+          f"{args.turntable} {frames_per_minute(scene, args.turntable, args.repeat):.1f} "
+          f"(wall clock, {numba.get_num_threads()} threads)")  # fmt: skip
+    overhead = float(med(ratios))
     print(f"headline: overhead {overhead:.2f}")
     assert math.isfinite(overhead)
+
+
+def frames_per_minute(scene, preset_name: str, repeat: int) -> float:
+    """Frames per minute (wall clock, median) of a preset's first frame at its own size."""
+    preset = load_preset(preset_name)
+    scene = apply_model_fixes(scene, preset)
+    frame = plan_frames(preset, scene)[0]
+    prepared = prepare_scene(scene)
+    render_frame(prepared, frame.camera, frame.look)  # compiled already; warms caches
+    walls = []
+    for _ in range(max(1, repeat // 2)):
+        t0 = time.perf_counter()
+        render_frame(prepared, frame.camera, frame.look)
+        walls.append(time.perf_counter() - t0)
+    return 60.0 / float(np.median(walls))
 
 
 if __name__ == "__main__":

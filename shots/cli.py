@@ -35,6 +35,11 @@ def fail(message: str, code: int = 2) -> None:
     raise typer.Exit(code)
 
 
+def warn(message: str) -> None:
+    """Print one warning line on stderr, unwrapped (a hint must stay greppable as one line)."""
+    err.print(f"[yellow]warning:[/] {escape(message)}", highlight=False, soft_wrap=True)
+
+
 def parse_size(text: str | None) -> tuple[int, int] | None:
     """'640x480' → (640, 480)."""
     if text is None:
@@ -81,7 +86,7 @@ def render(
             scene_choice=parse_scene(scene),
             variant=variant,
             on_frame=lambda r: out.print(f"wrote {r.path}", highlight=False),
-            on_warning=lambda text: err.print(f"[yellow]warning:[/] {escape(text)}", highlight=False),
+            on_warning=lambda text: warn(f"{model}: {text}"),
         )
     except ShotsError as exc:
         fail(str(exc))

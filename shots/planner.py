@@ -279,7 +279,8 @@ def check_outside(shot: FramedShot, distance: float, bases, extent: Extent, wher
         if distance <= deepest:
             raise PresetError(where[0], f"{where[1]}.pixels_per_metre",
                               f"{shot.pixels_per_metre:g} px/m puts the camera inside the model; "
-                              "use fewer pixels per metre or an orthographic projection")
+                              "use fewer pixels per metre or an orthographic projection, or, "
+                              "for a model exported in cm or mm, set [model] units")
 
 
 def ortho_standoff(extent: Extent) -> float:

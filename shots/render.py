@@ -72,6 +72,7 @@ LIGHT_KINDS = {
 }
 SHADOW_NOISE_FLOOR = 0.05  # shadow-catcher alpha below this is sampling noise (see below)
 MIN_CONTACT_SAMPLES = 4  # environment rays per shadow-catcher hit (soft contact shadow)
+CONTACT_REACH = 0.25  # contact-shadow rays reach this fraction of the model's box diagonal
 
 
 @dataclass(frozen=True)
@@ -244,8 +245,10 @@ def pack_frame(
     row[layout.F_BG_BOTTOM : layout.F_BG_BOTTOM + 3] = colours[1]
     row[layout.F_SH : layout.F_SH + 27] = np.asarray(sh, np.float64).ravel()
     row[layout.F_ENV_ROTATION] = look.environment.rotation
-    row[layout.F_BOX_LO : layout.F_BOX_LO + 3] = bounds[0]
-    row[layout.F_BOX_HI : layout.F_BOX_HI + 3] = bounds[1]
+    # Only nearby occluders darken the floor through contact rays: an unbounded reach lets distant
+    # floor points catch the product with a rare grazing ray, which speckles the whole floor.
+    diagonal = float(np.linalg.norm(np.subtract(bounds[1], bounds[0])))
+    row[layout.F_CONTACT_REACH] = CONTACT_REACH * diagonal
     return row
 
 

@@ -208,6 +208,21 @@ def test_tolerances_move_the_line(tmp_path):
     assert check_renders(tmp_path, Tolerances(centre_offset=0.1)).flagged == []
 
 
+def test_a_catalog_at_one_scale_is_held_only_to_the_centre_line(tmp_path):
+    # Discs of different sizes, as products at one fixed scale (fills 0.30–0.80); one sits low,
+    # as a shorter product does under a locked camera, one sits to the side, as a product off
+    # its pivot does. Fills spread (median deviation 0.07 > 0.04), so fill and the vertical
+    # centre are not compared; the horizontal centre still is.
+    for k, radius in enumerate([0.15, 0.22, 0.30, 0.40]):
+        save(tmp_path / f"size-{k}.png", disc_image(r=radius * S))
+    save(tmp_path / "low.png", disc_image(r=0.2 * S, cy=C + 0.1 * S))
+    save(tmp_path / "aside.png", disc_image(r=0.2 * S, cx=C + 0.08 * S))
+    report = check_renders(tmp_path)
+    assert report.medians.fill_spread > Tolerances().fill_spread
+    assert [(p.name, r[0][:10]) for p, r in report.flagged] == [("aside.png", "off centre")]
+    assert any("vertical centre not compared" in note for note in report.notes)
+
+
 def test_too_few_images_skip_the_catalog_comparisons(tmp_path):
     write_catalog(tmp_path, ["oak-disc.png", "cm-x0.1.png"])
     report = check_renders(tmp_path)

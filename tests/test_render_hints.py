@@ -2,6 +2,7 @@
 
 import numpy as np
 import trimesh
+from broken_copies import intact_copy, scaled_copy
 from gltf_builder import GltfBuilder
 from typer.testing import CliRunner
 
@@ -31,3 +32,20 @@ def test_centimetre_model_is_hinted_and_metre_model_is_not(tmp_path):
         assert ("centimetres" in result.output) is hinted, result.output
         # The fix is shown literally (the console must not read "[model]" as a style tag).
         assert ('[model] units = "cm"' in " ".join(result.output.split())) is hinted
+
+
+def test_a_demo_model_in_centimetres_gets_one_hint_line_naming_it(tmp_path):
+    # The demo chair scaled ×100 by its root node (tests/broken_copies.py): 46 × 84 × 50 units,
+    # a chair's size in centimetres read as metres (glTF 2.0 spec §Coordinate System and Units).
+    copy = scaled_copy("tavlund_ekra_chair", tmp_path / "models")
+    intact = intact_copy("tavlund_ekra_chair", tmp_path / "models")
+    result = runner.invoke(app, ["render", str(copy), "-o", str(tmp_path / "a"), "--size", "24x24"])
+    assert result.exit_code == 0, result.output
+    hints = [line for line in result.output.splitlines() if line.startswith("warning:")]
+    # One line, unwrapped at the runner's 80 columns: the file, what it looks like, the key.
+    assert len(hints) == 1, result.output
+    assert str(copy) in hints[0] and "centimetres" in hints[0]
+    assert '[model] units = "cm"' in hints[0]
+    result = runner.invoke(app, ["render", str(intact), "-o", str(tmp_path / "b"), "--size", "24x24"])
+    assert result.exit_code == 0, result.output
+    assert "warning" not in result.output

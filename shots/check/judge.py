@@ -5,6 +5,20 @@ with absolute limits (centre, background, clipping). The median is robust: a few
 not move it, so they stand out instead of hiding among themselves. Comparisons with the median need
 at least ``Tolerances.min_catalog`` images with a product.
 
+What the framing holds constant
+-------------------------------
+Fill and vertical centring are only worth comparing when the catalog's framing makes them equal.
+A tight thumbnail catalog gives every product the same fill and centres it, so an outlier is a
+fault. A catalog at one scale (a fixed-scale line-up, a locked camera over a floor) shows sizes as
+they are: a stool fills less than a sofa, and under a locked camera a lamp reaches higher in the
+frame than a stool standing on the same floor. So the catalog counts as framed to one fill when
+its fills agree (their median absolute deviation is at most ``fill_spread``; like the median, it
+is not moved by a few broken images), and only then are fill and the vertical centre compared.
+The horizontal centre is held to ``centre_offset`` in every catalog: a symmetric product standing
+on its origin stays on the centre line of a straight-on locked camera too. At one scale the
+faults show differently: a model in centimetres overflows the frame (it reaches the edge, or one
+surface covers the frame edge to edge), and an off-centre pivot moves the product sideways.
+
 Heuristics
 ----------
 *Upside down.* Two cues, either one flags. (1) The contact shadow lies above the product: its
@@ -58,6 +72,7 @@ class Tolerances:
     shadow_above: float = 0.1  # upside down: shadow centroid this many bbox heights above centre
     mass_low: float = 0.55  # upside down: mass position (0 top, 1 bottom) beyond this
     mass_margin: float = 0.1  # ... and this far beyond the catalog median
+    fill_spread: float = 0.04  # fill and vertical centre compared only when fills agree this well
     min_catalog: int = 3  # images with a product needed to compare with the catalog median
     alpha_threshold: float = MaskRules.alpha_threshold
     shadow_level: float = MaskRules.shadow_level
@@ -96,13 +111,17 @@ class Tolerances:
 
 @dataclass(frozen=True)
 class CatalogMedians:
-    """Medians over the images with a product; None when there are too few images."""
+    """Medians over the images with a product; None when there are too few images.
+
+    ``fill_spread`` is the median absolute deviation of fill: how well the catalog agrees on it.
+    """
 
     count: int
     fill: float | None
     luminance: float | None
     detail: float | None
     mass_position: float | None
+    fill_spread: float | None = None
 
 
 def catalog_medians(measurements: list[Measurement], tolerances: Tolerances) -> CatalogMedians:
@@ -115,13 +134,27 @@ def catalog_medians(measurements: list[Measurement], tolerances: Tolerances) -> 
             return None
         return float(np.median(values))
 
+    fills = [m.fill for m in found]
     return CatalogMedians(
         count=len(found),
         fill=median("fill"),
         luminance=median("luminance"),
         detail=median("detail"),
         mass_position=median("mass_position"),
+        fill_spread=median_deviation(fills) if len(fills) >= tolerances.min_catalog else None,
     )
+
+
+def median_deviation(values) -> float:
+    """Median absolute deviation from the median (unscaled): a spread a few outliers do not move."""
+    values = np.asarray(values, np.float64)
+    return float(np.median(np.abs(values - np.median(values))))
+
+
+def framed_to_one_fill(medians: CatalogMedians, tolerances: Tolerances) -> bool:
+    """Whether the catalog's fills agree (module docstring); True when it is too small to tell,
+    so a lone image is still held to the centre."""
+    return medians.fill_spread is None or medians.fill_spread <= tolerances.fill_spread
 
 
 def exposure_stops(m: Measurement, medians: CatalogMedians) -> float | None:
@@ -139,10 +172,17 @@ def catalog_notes(medians: CatalogMedians, tolerances: Tolerances) -> list[str]:
             f"only {medians.count} image(s) with a product: fill, exposure, texture and mass "
             f"are not compared with the catalog (needs {tolerances.min_catalog})"
         )
-    elif medians.detail is not None and medians.detail < tolerances.flat_floor:
+        return notes
+    if medians.detail is not None and medians.detail < tolerances.flat_floor:
         notes.append(
             f"missing-texture check off: the catalog is mostly flat colour (median detail "
             f"{medians.detail:.4f} < {tolerances.flat_floor:.4f})"
+        )
+    if not framed_to_one_fill(medians, tolerances):
+        notes.append(
+            f"fill and vertical centre not compared: the fills differ (median deviation "
+            f"{medians.fill_spread:.3f} > {tolerances.fill_spread:g}), as in a catalog at one "
+            f"scale; the horizontal centre is still checked"
         )
     return notes
 
@@ -150,26 +190,42 @@ def catalog_notes(medians: CatalogMedians, tolerances: Tolerances) -> list[str]:
 def reasons_for(m: Measurement, medians: CatalogMedians, tolerances: Tolerances) -> list[str]:
     """Every reason to look at this image again; empty when it is consistent."""
     if not m.found:
-        return ["no product found (the image is empty or all background)"]
+        if m.transparent:
+            return ["no product found (the image is empty or all background)"]
+        # An opaque frame of one colour: an empty render on a solid background, or, at a fixed
+        # scale, a close-up of a model so large that one of its surfaces covers the frame.
+        return [
+            "no product found: one colour edge to edge (an empty render, or a model so large "
+            "that one surface covers the frame: check the model's units)"
+        ]
     t = tolerances
     reasons = []
     if m.touches_edge:
-        reasons.append("the product reaches the frame edge: cut off?")
-    if medians.fill is not None and abs(m.fill - medians.fill) > t.fill:
+        reasons.append(
+            "the product reaches the frame edge: cut off? check the model's units or the framing"
+        )
+    one_fill = framed_to_one_fill(medians, t)
+    if medians.fill is not None and one_fill and abs(m.fill - medians.fill) > t.fill:
         size = "larger" if m.fill > medians.fill else "smaller"
         reasons.append(
             f"fill {m.fill:.2f} vs catalog {medians.fill:.2f} (±{t.fill:.2f}): {size} than the "
             f"rest; check the model's units or the framing"
         )
     dx, dy = m.centre_offset
-    if max(abs(dx), abs(dy)) > t.centre_offset:
+    if abs(dx) > t.centre_offset or (one_fill and abs(dy) > t.centre_offset):
+        # In a centred catalog the planner frames every vertex, so a product that sits high has
+        # a part that does not show: below the floor (a Z-up export, a pivot not at the foot).
         reasons.append(
             f"off centre by x {dx:+.3f}, y {dy:+.3f} of the frame (limit {t.centre_offset:.3f}): "
-            f"check the model's pivot or the framing"
+            f"check the model's pivot and up axis (a part below the floor does not show) or "
+            f"the framing"
         )
     stops = exposure_stops(m, medians)
     if stops is not None and abs(stops) > t.exposure_stops:
-        reasons.append(f"exposure {stops:+.1f} stops from the catalog (±{t.exposure_stops:g})")
+        reasons.append(
+            f"exposure {stops:+.1f} stops from the catalog (±{t.exposure_stops:g}): check the "
+            f"materials (a missing texture renders its plain base colour)"
+        )
     if m.clipped > t.clipped:
         reasons.append(f"{m.clipped:.0%} of the product at full white (limit {t.clipped:.0%})")
     if m.background_purity is not None and m.background_purity < t.purity:

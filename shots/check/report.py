@@ -132,7 +132,9 @@ def report_markdown(report: CheckReport) -> str:
         f"luminance Y {_num(m.luminance, 3)}, detail {_num(m.detail, 4)}, "
         f"mass position {_num(m.mass_position, 2)}.",
         "",
-        f"Limits: fill ±{t.fill:g} of the median, centre offset ≤ {t.centre_offset:g}, exposure "
+        f"Limits: fill ±{t.fill:g} of the median and vertical centre offset ≤ "
+        f"{t.centre_offset:g} when the fills agree (median deviation ≤ {t.fill_spread:g}), "
+        f"horizontal centre offset ≤ {t.centre_offset:g}, exposure "
         f"±{t.exposure_stops:g} stop(s), background purity ≥ {t.purity:g} (transparent) or border "
         f"spread ≤ {t.border_std:g} (opaque), clipped ≤ {t.clipped:.0%}.",
     ]

@@ -38,8 +38,8 @@ F_MAX_DEPTH, F_SEED, F_SEE_THROUGH, F_BACKGROUND, F_CONTACT_SAMPLES = 21, 22, 23
 F_BG_TOP, F_BG_BOTTOM = 26, 29  # linear rgb
 F_SH = 32  # 9 × 3 SH irradiance coefficients, row-major
 F_ENV_ROTATION = 59
-F_BOX_LO, F_BOX_HI = 60, 63  # the scene's bounding box (shadow rays that miss it skip the BVH)
-N_FRAME = 66
+F_CONTACT_REACH = 60  # length of the floor's contact-shadow rays (m)
+N_FRAME = 61
 BG_TRANSPARENT, BG_SOLID, BG_GRADIENT, BG_ENVIRONMENT = 0, 1, 2, 3
 
 # --- work ------------------------------------------------------------------------------------

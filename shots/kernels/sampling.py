@@ -116,8 +116,9 @@ def spread_stratum(i, n_hit, sample, samples, key, u1, u2):
     """
     total = n_hit * samples
     a = 1 + 2 * (key % total) if total > 1 else 1
-    while _gcd(a, total) != 1:
-        a += 1
+    if total & (total - 1):  # an odd a is coprime to a power of two: no search needed
+        while _gcd(a, total) != 1:
+            a += 1
     index = ((sample * n_hit + i) * a + (key >> 8)) % total
     return stratum(index, total, u1, u2)
 

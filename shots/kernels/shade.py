@@ -61,8 +61,7 @@ from shots.kernels.layout import (
     F_BACKGROUND,
     F_BG_BOTTOM,
     F_BG_TOP,
-    F_BOX_HI,
-    F_BOX_LO,
+    F_CONTACT_REACH,
     F_CONTACT_SAMPLES,
     F_ENV_ROTATION,
     F_EYE,
@@ -150,7 +149,6 @@ R_START = 16  # (3) where the ray's medium segment began: its un-offset surface 
 N_RAY = 19
 STACK_RAYS = 96  # the last row holds the ray being traced
 
-CONTACT_REACH = 0.25  # contact-shadow rays reach this fraction of the model's box diagonal
 MIRROR_ROUGHNESS = 0.03  # below: one ideal mirror ray (α ≤ 1e-3, a delta in practice)
 # At and above these roughnesses a lobe is taken as blurred environment light instead of traced:
 # a dielectric reflects only ~4 % and its rough sheen hides in noise, a metal shows it all.
@@ -237,7 +235,13 @@ def push_ray(stack, sp, ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, 
     """Push a ray onto the stack; returns the new stack size (rays beyond capacity are dropped)."""
     if sp >= stack.shape[0] - 1:  # the last row is the current ray
         return sp
-    row = stack[sp]
+    set_ray(stack[sp], ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, sr, sg, sb, camera)
+    return sp + 1
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def set_ray(row, ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, sr, sg, sb, camera):
+    """Fill one ray record (N_RAY,); its medium segment starts at its origin."""
     row[R_O] = ox
     row[R_O + 1] = oy
     row[R_O + 2] = oz
@@ -257,7 +261,6 @@ def push_ray(stack, sp, ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, 
     row[R_START] = ox
     row[R_START + 1] = oy
     row[R_START + 2] = oz
-    return sp + 1
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
@@ -272,7 +275,7 @@ def set_start(stack, sp, x, y, z):
 # =================================================================================================
 # visibility
 # =================================================================================================
-@njit(cache=True, error_model="numpy", _nrt=False)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def find_surface(bvh, scene, ground, ox, oy, oz, dx, dy, dz, t_min, camera, surf, work, tstack):
     """The first surface a ray sees, skipping cut-out and single-sided back-face hits.
 
@@ -308,28 +311,38 @@ def find_surface(bvh, scene, ground, ox, oy, oz, dx, dy, dz, t_min, camera, surf
     return np.inf, 0
 
 
-@njit(cache=True, error_model="numpy", _nrt=False)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def shadow_ray(frame, bvh, scene, ground, see_through, ox, oy, oz, dx, dy, dz, t_max, surf, work,
-                  tstack):  # fmt: skip
+               tstack):  # fmt: skip
     """Light let through along a shadow ray (origin already offset) up to ``t_max``.
 
-    Opaque geometry blocks it; cut-outs pass it; BLEND surfaces pass 1 − α; transmissive
-    surfaces pass their tint (no refraction: caustics are out of scope). A visible floor blocks.
-    Returns r, g, b in [0, 1].
+    Opaque geometry blocks it; a visible floor blocks. Scenes with see-through materials take
+    ``light_through``. Returns r, g, b in [0, 1]. Inlined: shadow rays are most of a frame's
+    rays, and a call would pass every array of the scene on the stack.
     """
     kind = int(ground[G_KIND])
     if kind != GROUND_NONE and kind != GROUND_CATCHER:
         tg, _, _, _ = intersect_ground(ground, ox, oy, oz, dx, dy, dz, 0.0, t_max)
         if tg < t_max:
             return 0.0, 0.0, 0.0
+    if see_through:
+        return light_through(bvh, scene, ox, oy, oz, dx, dy, dz, t_max, surf, work, tstack)
+    node_bounds, node_links, tri_verts, _ = bvh
+    if any_hit_one(node_bounds, node_links, tri_verts, ox, oy, oz, dx, dy, dz, 0.0, t_max, tstack):
+        return 0.0, 0.0, 0.0
+    return 1.0, 1.0, 1.0
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def light_through(bvh, scene, ox, oy, oz, dx, dy, dz, t_max, surf, work, tstack):
+    """Light let through along a shadow ray past see-through surfaces up to ``t_max``.
+
+    Cut-outs pass it; BLEND surfaces pass 1 − α; transmissive surfaces pass their tint (no
+    refraction: caustics are out of scope). Returns r, g, b in [0, 1].
+    """
     node_bounds, node_links, tri_verts, tri_ids = bvh
-    if not see_through:
-        if any_hit_one(node_bounds, node_links, tri_verts, ox, oy, oz, dx, dy, dz, 0.0, t_max,
-                       tstack):  # fmt: skip
-            return 0.0, 0.0, 0.0
-        return 1.0, 1.0, 1.0
     verts, faces, materials, texels, tex_info = scene
-    tr, tg_, tb = 1.0, 1.0, 1.0
+    tr, tg, tb = 1.0, 1.0, 1.0
     t_lo = 0.0
     for _ in range(MAX_SKIPS):
         t, k, b1, b2 = closest_hit_one(
@@ -337,14 +350,14 @@ def shadow_ray(frame, bvh, scene, ground, see_through, ox, oy, oz, dx, dy, dz, t
             tstack,
         )  # fmt: skip
         if k < 0:
-            return tr, tg_, tb
+            return tr, tg, tb
         mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_info, surf, work)
         a = surf[S_OPACITY]
         through = (1.0 - surf[S_METALLIC]) * surf[S_TRANSMISSION]
         tr *= (1.0 - a) + a * through * surf[S_BASE_R]
-        tg_ *= (1.0 - a) + a * through * surf[S_BASE_G]
+        tg *= (1.0 - a) + a * through * surf[S_BASE_G]
         tb *= (1.0 - a) + a * through * surf[S_BASE_B]
-        if max(tr, tg_, tb) <= 0.0:
+        if max(tr, tg, tb) <= 0.0:
             return 0.0, 0.0, 0.0
         t_lo = t * (1.0 + 1e-7) + 1e-9
     return 0.0, 0.0, 0.0
@@ -414,7 +427,7 @@ def eval_bsdf(surf, vx, vy, vz, lx, ly, lz):
     return fr * n_dot_l, fg * n_dot_l, fb * n_dot_l
 
 
-@njit(cache=True, error_model="numpy", _nrt=False)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sample, frame, bvh,
                  scene, ground, see_through, surf2, work, tstack):  # fmt: skip
     """Reflected radiance from all look lights with shadow rays; returns r, g, b.
@@ -428,6 +441,7 @@ def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sampl
     for k in range(lights.shape[0]):
         area = int(lights[k, L_KIND]) == KIND_AREA
         n = spread_count(area_samples, spp) if area else 1
+        inv_n = 1.0 / n
         key = pixel_key(seed, pixel, k)
         for s in range(n):
             u1, u2 = 0.5, 0.5
@@ -438,9 +452,9 @@ def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sampl
             if er + eg + eb <= 0.0 or wx * gx + wy * gy + wz * gz <= 0.0:
                 continue
             fr, fg, fb = eval_bsdf(surf, vx, vy, vz, wx, wy, wz)
-            fr *= er / n
-            fg *= eg / n
-            fb *= eb / n
+            fr *= er * inv_n
+            fg *= eg * inv_n
+            fb *= eb * inv_n
             if fr + fg + fb <= 0.0:
                 continue
             ox, oy, oz = offset_point(surf, 1.0)
@@ -453,7 +467,7 @@ def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sampl
     return lr, lg, lb
 
 
-@njit(cache=True, error_model="numpy", _nrt=False)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def shadow_amount(surf, lights, area_samples, contact_samples, spp, seed, pixel, sample,
                   frame, bvh, scene, ground, see_through, surf2, work,
                   tstack):  # fmt: skip
@@ -496,13 +510,7 @@ def shadow_amount(surf, lights, area_samples, contact_samples, spp, seed, pixel,
         t1x, t1y, t1z, t2x, t2y, t2z = orthonormal_basis(nx, ny, nz)
         n = spread_count(contact_samples, spp)
         key = pixel_key(seed, pixel, lights.shape[0])
-        # Only nearby occluders darken the floor this way: an unbounded reach lets distant floor
-        # points catch the product with a rare grazing ray, which speckles the whole floor.
-        reach = CONTACT_REACH * math.sqrt(
-            (frame[F_BOX_HI] - frame[F_BOX_LO]) ** 2
-            + (frame[F_BOX_HI + 1] - frame[F_BOX_LO + 1]) ** 2
-            + (frame[F_BOX_HI + 2] - frame[F_BOX_LO + 2]) ** 2
-        )
+        reach = frame[F_CONTACT_REACH]  # nearby occluders only (see render.pack_frame)
         seen = 0.0
         for s in range(n):
             r1, r2 = next_pair(seed, pixel, sample, work)
@@ -524,7 +532,7 @@ def shadow_amount(surf, lights, area_samples, contact_samples, spp, seed, pixel,
 # =================================================================================================
 # one hit: add what it sends back along the ray, push the rays it spawns
 # =================================================================================================
-@njit(cache=True, error_model="numpy", _nrt=False)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def shade_hit(surf, ray, t_hit, frame, lights, env_map, bvh, scene, ground, pixel, sample, stack,
               sp, surf2, work, tstack):  # fmt: skip
     """Shade one surface hit of ``ray`` (N_RAY,); adds to work[W_ACC:+4], returns the stack size."""
@@ -736,7 +744,7 @@ def absorption(surf, c):
 # =================================================================================================
 # one camera sample
 # =================================================================================================
-@njit(cache=True, error_model="numpy", _nrt=False)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env_map, bvh, scene,
                  ground, pixel, sample, stack, surf, surf2, work, tstack):  # fmt: skip
     """Trace one camera ray and its tree; adds premultiplied RGBA into work[W_ACC:+4].
@@ -744,26 +752,17 @@ def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env_ma
     ``stack`` (STACK_RAYS, N_RAY), ``surf``, ``surf2`` (N_SURFACE,) and ``work`` are scratch.
     """
     background = int(frame[F_BACKGROUND])
+    # the ray being traced lives in the stack's last row; the camera ray starts there, so the
+    # many that see only the background never touch the stack
     ray = stack[STACK_RAYS - 1]
-    # the camera ray first: most that miss everything are done without the ray stack
-    t, what = find_surface(bvh, scene, ground, ox, oy, oz, dx, dy, dz, 0.0, True, surf, work,
-                           tstack)  # fmt: skip
-    if what == 0 and background == BG_TRANSPARENT:
-        return
-    sp = push_ray(stack, 0, ox, oy, oz, dx, dy, dz, 1.0, 1.0, 1.0, 1.0, 0, 0.0, 0.0, 0.0, 0.0, 1.0)
-    first = True
-    while sp > 0:
-        sp -= 1
-        for c in range(N_RAY):  # element copy: a slice copy between views of one array allocates
-            ray[c] = stack[sp, c]
+    set_ray(ray, ox, oy, oz, dx, dy, dz, 1.0, 1.0, 1.0, 1.0, 0, 0.0, 0.0, 0.0, 0.0, 1.0)
+    sp = 0
+    while True:
         rox, roy, roz = ray[R_O], ray[R_O + 1], ray[R_O + 2]
         rdx, rdy, rdz = ray[R_D], ray[R_D + 1], ray[R_D + 2]
         camera = ray[R_CAMERA] != 0.0
-        if first:  # found above
-            first = False
-        else:
-            t, what = find_surface(bvh, scene, ground, rox, roy, roz, rdx, rdy, rdz, ray[R_TMIN],
-                                   camera, surf, work, tstack)  # fmt: skip
+        t, what = find_surface(bvh, scene, ground, rox, roy, roz, rdx, rdy, rdz, ray[R_TMIN],
+                               camera, surf, work, tstack)  # fmt: skip
         if what == 2 and camera and int(ground[G_KIND]) == GROUND_CATCHER:
             # invisible floor: its shadow becomes coverage of black (premultiplied: alpha only);
             # the rest of the ray shows the background (nothing stands below the floor)
@@ -794,6 +793,11 @@ def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env_ma
             work[W_ACC + 2] += ray[R_W + 2] * qb
             if camera:
                 work[W_ACC + 3] += ray[R_COVER]
+        if sp == 0:
+            return
+        sp -= 1
+        for c in range(N_RAY):  # element copy: a slice copy between views of one array allocates
+            ray[c] = stack[sp, c]
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
@@ -833,6 +837,8 @@ def sample_offset(spp, s, seed, pixel):
 # =================================================================================================
 # the image
 # =================================================================================================
+# No fastmath here: numba passes it on to the callees it compiles, and contracting the
+# watertight edge functions into FMAs lets rays through shared edges (Woop et al. 2013).
 @njit(cache=True, parallel=True, error_model="numpy")
 def render_image(out, frame, lights, env_map, ground, bvh, scene):
     """Render every pixel into ``out``.
