@@ -629,11 +629,15 @@ def liora_lamp() -> Product:
     )
 
 
-FABRICS = {  # variant name: (base colour, sheen colour), sRGB
+FABRICS = {  # variant name: (base colour, sheen tint), sRGB
     "oat": ("#c8b79c", "#efe4d2"),
     "slate": ("#59606a", "#9aa3ae"),
     "moss": ("#5f6b45", "#a3ad86"),
 }
+# A modest sheen: half the tint, on fibres that keep it to grazing views (KHR_materials_sheen
+# roughness 0.4). At full tint and roughness 0.6 the haze covered every face and washed the
+# colours out.
+SHEEN_STRENGTH, SHEEN_ROUGHNESS = 0.5, 0.4
 
 
 def mosse_sofa() -> Product:
@@ -647,8 +651,8 @@ def mosse_sofa() -> Product:
             normal_scale=0.8,
             extensions={
                 "KHR_materials_sheen": {
-                    "sheenColorFactor": srgb_to_linear(sheen),
-                    "sheenRoughnessFactor": 0.6,
+                    "sheenColorFactor": [SHEEN_STRENGTH * c for c in srgb_to_linear(sheen)],
+                    "sheenRoughnessFactor": SHEEN_ROUGHNESS,
                 }
             },
         )

@@ -3,8 +3,10 @@
 Whitted-style recursion, unrolled onto a small per-thread ray stack. At each hit:
 
 - emission, and direct light from every look light through shadow rays (area lights with
-  stratified samples, so their shadows are soft), with the glTF BRDF (spec Appendix B);
-- diffuse light from the environment's spherical-harmonics irradiance, × occlusion;
+  stratified samples, so their shadows are soft), with the glTF BRDF (spec Appendix B) under
+  the KHR_materials_sheen fibre layer (``shots.kernels.sheen``);
+- diffuse light from the environment's spherical-harmonics irradiance, × occlusion (the sheen
+  layer's share of it too, approximately);
 - specular light from reflection rays: one mirror ray for smooth surfaces, several GGX-sampled
   rays for glossy ones (Heitz 2018 visible normals), weighted by Fresnel; rough lobes take the
   SH-blurred environment along the mirror direction instead (tracing them mostly adds noise);
@@ -96,6 +98,7 @@ from shots.kernels.sampling import (
     stratum,
     tent_warp,
 )
+from shots.kernels.sheen import albedo_scaling, sheen_albedo, sheen_lobe
 from shots.kernels.surface import (
     N_SURFACE,
     S_ATT_DISTANCE,
@@ -126,6 +129,10 @@ from shots.kernels.surface import (
     S_PY,
     S_PZ,
     S_ROUGHNESS,
+    S_SHEEN_B,
+    S_SHEEN_G,
+    S_SHEEN_R,
+    S_SHEEN_ROUGHNESS,
     S_SKIP,
     S_SPEC_R,
     S_SPECULAR,
@@ -151,7 +158,7 @@ STACK_RAYS = 96  # the last row holds the ray being traced
 
 MIRROR_ROUGHNESS = 0.03  # below: one ideal mirror ray (α ≤ 1e-3, a delta in practice)
 # At and above these roughnesses a lobe is taken as blurred environment light instead of traced:
-# a dielectric reflects only ~4 % and its rough sheen hides in noise, a metal shows it all.
+# a dielectric reflects only ~4 % and its blurred highlight hides in noise, a metal shows it all.
 GLOSSY_DIELECTRIC = 0.3
 GLOSSY_METAL = 0.6
 MIN_WEIGHT = 1e-3  # rays carrying less than this are not traced (their mean is added instead)
@@ -411,7 +418,16 @@ def eval_bsdf(surf, vx, vy, vz, lx, ly, lz):
                       d_vis, fw)  # fmt: skip
     fb = brdf_channel(surf[S_BASE_B], metallic, dielectric_f0(surf, 2), f90, diffuse_weight,
                       d_vis, fw)  # fmt: skip
-    coat = clearcoat_fresnel(surf, vx, vy, vz)
+    sheen = max(surf[S_SHEEN_R], surf[S_SHEEN_G], surf[S_SHEEN_B])
+    if sheen > 0.0:
+        # KHR_materials_sheen, "Albedo-scaling technique": f = sheenColor·D·V + scaling·f_base
+        rough = surf[S_SHEEN_ROUGHNESS]
+        scaling = albedo_scaling(sheen, n_dot_v, rough)
+        lobe = sheen_lobe(n_dot_l, n_dot_v, n_dot_h, rough)
+        fr = fr * scaling + surf[S_SHEEN_R] * lobe
+        fg = fg * scaling + surf[S_SHEEN_G] * lobe
+        fb = fb * scaling + surf[S_SHEEN_B] * lobe
+    coat = clearcoat_fresnel(surf, vx, vy, vz)  # the clearcoat lies over the sheen
     if coat > 0.0:
         cx, cy, cz = surf[S_CX], surf[S_CY], surf[S_CZ]
         cl = cx * lx + cy * ly + cz * lz
@@ -611,12 +627,29 @@ def shade_hit(surf, ray, t_hit, frame, lights, env_map, bvh, scene, ground, pixe
     spec0, diff0, trans0 = fresnel_split(surf, 0, fw, smooth, under, tir, tint)
     spec1, diff1, trans1 = fresnel_split(surf, 1, fw, smooth, under, tir, tint)
     spec2, diff2, trans2 = fresnel_split(surf, 2, fw, smooth, under, tir, tint)
+    sheen = max(surf[S_SHEEN_R], surf[S_SHEEN_G], surf[S_SHEEN_B])
+    e_sheen = 0.0
+    if sheen > 0.0:
+        # KHR_materials_sheen: the base layer's environment light (irradiance, reflection and
+        # transmission weights) keeps 1 − max(sheenColor)·E(N·V)
+        e_sheen = sheen_albedo(n_dot_v, surf[S_SHEEN_ROUGHNESS])
+        scaling = max(1.0 - sheen * e_sheen, 0.0)
+        spec0, diff0, trans0 = spec0 * scaling, diff0 * scaling, trans0 * scaling
+        spec1, diff1, trans1 = spec1 * scaling, diff1 * scaling, trans1 * scaling
+        spec2, diff2, trans2 = spec2 * scaling, diff2 * scaling, trans2 * scaling
 
     # diffuse environment light (SH irradiance), attenuated by the occlusion texture only
     er, eg, eb = sh_irradiance(frame, nx, ny, nz)
     work[W_ACC + 0] += wr * diff0 * er * INV_PI * occlusion
     work[W_ACC + 1] += wg * diff1 * eg * INV_PI * occlusion
     work[W_ACC + 2] += wb * diff2 * eb * INV_PI * occlusion
+    if sheen > 0.0:
+        # ambient sheen, an approximation: sheenColor·E(N·V)·irradiance(N)/π is exact only for
+        # light that is the same from every direction (no rays traced for the fibre lobe)
+        k = under * e_sheen * INV_PI * occlusion
+        work[W_ACC + 0] += wr * surf[S_SHEEN_R] * k * er
+        work[W_ACC + 1] += wg * surf[S_SHEEN_G] * k * eg
+        work[W_ACC + 2] += wb * surf[S_SHEEN_B] * k * eb
 
     can_trace = depth + 1 <= max_depth
     px, py, pz = surf[S_PX], surf[S_PY], surf[S_PZ]

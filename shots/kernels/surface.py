@@ -50,6 +50,10 @@ from shots.scene import (
     P_NORMAL_SCALE,
     P_OCCLUSION_STRENGTH,
     P_ROUGHNESS,
+    P_SHEEN_B,
+    P_SHEEN_G,
+    P_SHEEN_R,
+    P_SHEEN_ROUGHNESS,
     P_SPECULAR,
     P_SPECULAR_B,
     P_SPECULAR_G,
@@ -64,6 +68,8 @@ from shots.scene import (
     T_METALLIC_ROUGHNESS,
     T_NORMAL,
     T_OCCLUSION,
+    T_SHEEN_COLOR,
+    T_SHEEN_ROUGHNESS,
     T_SPECULAR,
     T_SPECULAR_COLOR,
     T_THICKNESS,
@@ -93,7 +99,9 @@ S_UNLIT = 32
 S_FRONT = 33  # 1 when the ray hit the face's front (counter-clockwise) side
 S_SKIP = 34  # 1 when the hit is to be ignored (single-sided back face)
 S_CX, S_CY, S_CZ = 35, 36, 37  # clearcoat normal: the interpolated normal without normal map
-N_SURFACE = 38
+S_SHEEN_R, S_SHEEN_G, S_SHEEN_B = 38, 39, 40  # KHR_materials_sheen colour (linear); 0: no layer
+S_SHEEN_ROUGHNESS = 41
+N_SURFACE = 42
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
@@ -226,7 +234,7 @@ def mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_inf
     surf[S_EM_G] = eg
     surf[S_EM_B] = eb
 
-    # --- extensions: transmission (R), volume thickness (G), clearcoat, specular ---------------
+    # --- extensions: transmission (R), volume thickness (G), clearcoat, specular, sheen --------
     transmission = materials[m, P_TRANSMISSION]
     if transmission > 0.0 and sample_slot(materials, texels, tex_info, m, T_TRANSMISSION, work):
         transmission *= work[W_TEXEL]
@@ -264,6 +272,23 @@ def mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_inf
     surf[S_SPEC_G] = sg
     surf[S_SPEC_B] = sb
     surf[S_UNLIT] = materials[m, P_UNLIT]
+    # KHR_materials_sheen: colour × texture rgb (sRGB-decoded), roughness × texture alpha; a
+    # zero colour factor disables the layer, so its textures are not read
+    sheen_r = materials[m, P_SHEEN_R]
+    sheen_g = materials[m, P_SHEEN_G]
+    sheen_b = materials[m, P_SHEEN_B]
+    sheen_roughness = materials[m, P_SHEEN_ROUGHNESS]
+    if max(sheen_r, sheen_g, sheen_b) > 0.0:
+        if sample_slot(materials, texels, tex_info, m, T_SHEEN_COLOR, work):
+            sheen_r *= work[W_TEXEL]
+            sheen_g *= work[W_TEXEL + 1]
+            sheen_b *= work[W_TEXEL + 2]
+        if sample_slot(materials, texels, tex_info, m, T_SHEEN_ROUGHNESS, work):
+            sheen_roughness *= work[W_TEXEL + 3]
+    surf[S_SHEEN_R] = sheen_r
+    surf[S_SHEEN_G] = sheen_g
+    surf[S_SHEEN_B] = sheen_b
+    surf[S_SHEEN_ROUGHNESS] = min(max(sheen_roughness, 0.0), 1.0)
 
     # --- normal map (spec §Materials "normalTexture"; tangent w = bitangent sign) --------------
     if sample_slot(materials, texels, tex_info, m, T_NORMAL, work):
