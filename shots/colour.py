@@ -36,16 +36,31 @@ def pbr_neutral(color: np.ndarray) -> np.ndarray:
     start_compression = 0.8 - 0.04
     desaturation = 0.15
     color = np.asarray(color, np.float64)
-    x = np.min(color, axis=-1, keepdims=True)
+    shape = color.shape
+    color = color.reshape(-1, 3)
+    x = _channel_min(color)
     offset = np.where(x < 0.08, x - 6.25 * x * x, 0.04)
     color = color - offset
-    peak = np.max(color, axis=-1, keepdims=True)
-    d = 1.0 - start_compression
-    new_peak = 1.0 - d * d / (peak + d - start_compression)
-    compressed = color * (new_peak / np.maximum(peak, 1e-12))
-    g = 1.0 - 1.0 / (desaturation * (peak - new_peak) + 1.0)
-    compressed = compressed * (1.0 - g) + new_peak * g
-    return np.where(peak < start_compression, color, compressed)
+    peak = _channel_max(color)
+    bright = ~(peak[:, 0] < start_compression)  # NaN is compressed, as np.where would
+    if np.any(bright):
+        peak, below = peak[bright], color[bright]
+        d = 1.0 - start_compression
+        new_peak = 1.0 - d * d / (peak + d - start_compression)
+        compressed = below * (new_peak / np.maximum(peak, 1e-12))
+        g = 1.0 - 1.0 / (desaturation * (peak - new_peak) + 1.0)
+        color[bright] = compressed * (1.0 - g) + new_peak * g
+    return color.reshape(shape)
+
+
+def _channel_min(rgb: np.ndarray) -> np.ndarray:
+    """(n, 1) smallest channel of (n, 3) colours (np.min over a short axis is slow)."""
+    return np.minimum(np.minimum(rgb[:, 0], rgb[:, 1]), rgb[:, 2])[:, None]
+
+
+def _channel_max(rgb: np.ndarray) -> np.ndarray:
+    """(n, 1) largest channel of (n, 3) colours."""
+    return np.maximum(np.maximum(rgb[:, 0], rgb[:, 1]), rgb[:, 2])[:, None]
 
 
 def to_display(
@@ -61,15 +76,55 @@ def to_display(
     premultiplied : (h, w, 4) float32 linear RGBA, colour already multiplied by alpha.
     exposure : stops; the linear colour is multiplied by 2**exposure.
     tone_map : "neutral" (Khronos PBR Neutral) or "none" (clip).
+
+    Returns
+    -------
+    (h, w, 4) float64 display RGBA.
+    """
+    alpha, coloured, colour = _display_parts(premultiplied, exposure, tone_map)
+    display = np.zeros(premultiplied.shape[:-1] + (4,), np.float64)
+    display[..., 3] = alpha
+    display[coloured, :3] = colour
+    return display
+
+
+def display_codes(
+    premultiplied: np.ndarray, exposure: float = 0.0, tone_map: str = "neutral", bits: int = 8
+) -> np.ndarray:
+    """``quantize(to_display(...), bits)`` without the full-size float image in between.
+
+    Returns
+    -------
+    (h, w, 4) uint8 (``bits`` 8) or uint16 (16) straight-alpha display codes.
+    """
+    alpha, coloured, colour = _display_parts(premultiplied, exposure, tone_map)
+    codes = np.zeros(premultiplied.shape[:-1] + (4,), np.uint8 if bits == 8 else np.uint16)
+    codes[..., 3] = quantize(alpha, bits)
+    codes[coloured, :3] = quantize(colour, bits)
+    return codes
+
+
+def _display_parts(premultiplied: np.ndarray, exposure: float, tone_map: str):
+    """The display image in parts: (h, w) float64 alpha in [0, 1], the (h, w) bool mask of
+    pixels with colour, and their (n, 3) float64 display colour; every other pixel is black.
+
+    Only pixels with some colour go through the curves: black maps to black through each of
+    them, and on a catalog image (transparent background, black shadow catcher) the colourless
+    pixels are most of the frame. The values are the same as computing every pixel.
     """
     if tone_map not in TONE_MAPS:
         raise ValueError(f"tone map must be one of {TONE_MAPS}, not {tone_map!r}")
-    alpha = np.clip(premultiplied[..., 3:4].astype(np.float64), 0.0, 1.0)
-    color = np.where(alpha > 0, premultiplied[..., :3] / np.maximum(alpha, 1e-12), 0.0)
-    color = np.maximum(color, 0.0) * 2.0**exposure
+    alpha = np.clip(premultiplied[..., 3].astype(np.float64), 0.0, 1.0)
+    premultiplied_colour = premultiplied[..., :3]
+    # NaN counts as colour (NaN != 0), so a bad pixel is not hidden as black
+    coloured = alpha > 0
+    coloured &= (premultiplied_colour[..., 0] != 0) | (premultiplied_colour[..., 1] != 0) \
+        | (premultiplied_colour[..., 2] != 0)
+    colour = premultiplied_colour[coloured] / np.maximum(alpha[coloured], 1e-12)[:, None]
+    colour = np.maximum(colour, 0.0) * 2.0**exposure
     if tone_map == "neutral":
-        color = pbr_neutral(color)
-    return np.concatenate([linear_to_srgb(color), alpha], axis=-1)
+        colour = pbr_neutral(colour)
+    return alpha, coloured, linear_to_srgb(colour)
 
 
 def quantize(display: np.ndarray, bits: int = 8) -> np.ndarray:

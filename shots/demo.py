@@ -3,6 +3,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import tempfile
 from dataclasses import dataclass
 from importlib import resources
@@ -47,9 +48,12 @@ def run_demo(out_dir: Path, *, quiet: bool = False, console=None) -> list:
     (``out_dir/thumbnails/report.md`` for the catalog thumbnails).
     """
     from shots.batch import run_batch
+    from shots.batch.runner import available_cores, local_workers
 
     summaries = []
-    with tempfile.TemporaryDirectory(prefix="shots-demo-") as scratch:
+    # one set of worker processes for every step: each would otherwise start its own
+    workers = local_workers() if available_cores() > 1 else contextlib.nullcontext()
+    with tempfile.TemporaryDirectory(prefix="shots-demo-") as scratch, workers as pool:
         for step in DEMO_STEPS:
             source = demo_folder()
             if step.models is not None:
@@ -60,6 +64,6 @@ def run_demo(out_dir: Path, *, quiet: bool = False, console=None) -> list:
                 console.print(f"[bold]{step.title}[/] ({step.preset})", highlight=False)
             summaries.append(
                 run_batch(source, step.preset, out_dir / step.folder, variants=step.variants,
-                          quiet=quiet, console=console)
+                          quiet=quiet, console=console, pool=pool)
             )
     return summaries

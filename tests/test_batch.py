@@ -4,6 +4,7 @@ processes and from a Dask cluster."""
 
 import hashlib
 import json
+import multiprocessing
 import os
 import random
 import shutil
@@ -26,6 +27,7 @@ import shots
 from shots.batch import jobs, run_batch
 from shots.batch.cli_command import batch
 from shots.batch.layout import Layout
+from shots.batch.runner import local_workers
 from shots.batch.sheet import CAPTION_LINES, LINE_HEIGHT, PAD, THUMB
 from shots.errors import BatchError
 from shots.gltf import load_scene
@@ -453,6 +455,22 @@ def test_local_processes_write_the_same_bytes(reference, tmp_path):
                           variants="all", workers=2)
     assert summary.exit_code == 0
     assert tree(tmp_path / "out") == tree(reference["out"])
+
+
+@pytest.mark.slow
+def test_shared_workers_serve_several_batches(reference, tmp_path):
+    before = {p.pid for p in multiprocessing.active_children()}
+    with local_workers(2, threads=1) as pool:
+        first = quiet_batch(reference["catalog"], reference["preset"], tmp_path / "a",
+                            variants="all", pool=pool)
+        started = {p.pid for p in multiprocessing.active_children()} - before
+        second = quiet_batch(reference["catalog"], reference["preset"], tmp_path / "b",
+                             variants="all", pool=pool)
+        still = {p.pid for p in multiprocessing.active_children()} - before
+    assert first.exit_code == second.exit_code == 0
+    assert len(started) == 2 and still == started  # the second batch started no process
+    assert tree(tmp_path / "a") == tree(reference["out"]) == tree(tmp_path / "b")
+    assert not {p.pid for p in multiprocessing.active_children()} & started  # stopped
 
 
 @pytest.mark.slow

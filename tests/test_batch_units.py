@@ -180,6 +180,23 @@ def test_chunks_cover_every_frame_once(tiny_preset, workers):
         assert len(tasks) >= workers
 
 
+def test_chunks_shrink_toward_the_end_of_the_run(tiny_preset):
+    # Guided self-scheduling (Polychronopoulos & Kuck 1987): a chunk takes at most a share of
+    # the frames still to hand out, so the last ones are single frames and workers end together.
+    frames = [jobs.FrameId("default", "spin", k) for k in range(24)]
+    tasks = jobs.chunk_tasks([jobs.ModelVariantJob("m", "h", "default", frames)], 2,
+                             tiny_preset, "hash", 8, False)
+    sizes = [len(t.frames) for t in tasks]
+    assert sum(sizes) == 24 and sizes == sorted(sizes, reverse=True)
+    assert sizes[0] == 24 // (jobs.TAIL_SHARE * 2) and sizes[-2:] == [1, 1]
+    assert [i for t in tasks for _, i in t.frames] == list(range(24))  # in order, once each
+    # many models: every model but the last few stays one chunk (loaded once)
+    many = [jobs.ModelVariantJob(f"m{k}", "h", "default", frames) for k in range(20)]
+    tasks = jobs.chunk_tasks(many, 2, tiny_preset, "hash", 8, False)
+    whole = [t.model for t in tasks if len(t.frames) == 24]
+    assert whole == [f"m{k}" for k in range(len(whole))] and len(whole) >= 16
+
+
 # --- the catalog -----------------------------------------------------------------------------
 
 
@@ -264,6 +281,33 @@ def test_flatten_is_over_in_linear_light():
     # half-covered white over black: linear 128/255 = 0.502 → sRGB 1.055·0.502^(1/2.4) − 0.055
     # = 0.7363 → code 188 (IEC 61966-2-1 §5.2 encoding)
     assert flat[0, 2].tolist() == [188, 188, 188]
+
+
+def test_flatten_table_equals_over_pixel_by_pixel():
+    # Porter & Duff (1984) "over" in linear light, sRGB decoded and encoded per IEC 61966-2-1
+    # §5.2, computed here for each pixel on its own in float64.
+    rng = np.random.default_rng(7)
+    rgba = rng.integers(0, 256, (40, 40, 4), dtype=np.uint8)
+    rgba[:4, :, 3] = 0
+    rgba[4:8, :, 3] = 255
+    for background in [(1.0, 1.0, 1.0), (0.92, 0.5, 0.13)]:
+        flat = encode.flatten(rgba, background)
+        for y, x in np.ndindex(rgba.shape[:2]):
+            a = rgba[y, x, 3] / 255.0
+            for c in range(3):
+                colour = _decode(rgba[y, x, c] / 255.0) * a + _decode(background[c]) * (1 - a)
+                expected = 255.0 * _encode(colour)
+                # the batch mixes in float32: a code may round the other way at a tie
+                assert abs(int(flat[y, x, c]) - expected) <= 0.5 + 1e-3, (y, x, c)
+
+
+def _decode(v: float) -> float:
+    return v / 12.92 if v <= 0.04045 else ((v + 0.055) / 1.055) ** 2.4
+
+
+def _encode(v: float) -> float:
+    v = min(max(v, 0.0), 1.0)
+    return 12.92 * v if v <= 0.0031308 else 1.055 * v ** (1 / 2.4) - 0.055
 
 
 def test_gif_loops_forever_with_every_frame(tmp_path):

@@ -6,7 +6,14 @@ import numpy as np
 import png
 from PIL import Image
 
-from shots.colour import linear_to_srgb, pbr_neutral, quantize, srgb_to_linear, to_display
+from shots.colour import (
+    display_codes,
+    linear_to_srgb,
+    pbr_neutral,
+    quantize,
+    srgb_to_linear,
+    to_display,
+)
 from shots.output import CURRENT_UMASK, png_bytes, write_png
 
 
@@ -47,6 +54,53 @@ def test_half_covered_white_edge_has_no_dark_fringe():
     premultiplied = np.array([[[0.5, 0.5, 0.5, 0.5]]], np.float32)
     codes = quantize(to_display(premultiplied, tone_map="none"))
     assert codes.tolist() == [[[255, 255, 255, 128]]]
+
+
+def test_to_display_equals_the_formulas_pixel_by_pixel():
+    # Each pixel on its own: un-premultiply (PNG spec §12.8 straight alpha), Khronos PBR Neutral
+    # (KhronosGroup/ToneMapping, 2024, reference code), IEC 61966-2-1 §5.2 encoding, in Python
+    # floats. to_display skips colourless pixels; they must come out black like the rest say.
+    rng = np.random.default_rng(11)
+    image = rng.uniform(-0.2, 3.0, (24, 24, 4)).astype(np.float32)
+    image[..., 3] = rng.uniform(-0.1, 1.1, (24, 24))
+    image[:6, :, :3] = 0.0  # black pixels: shadow-catcher pixels and transparent background
+    image[6:8, :, 3] = 0.0
+    display = to_display(image, exposure=0.5)
+    for y, x in np.ndindex(image.shape[:2]):
+        alpha = min(max(float(image[y, x, 3]), 0.0), 1.0)
+        rgb = [max(float(c) / alpha, 0.0) * 2**0.5 if alpha > 0 else 0.0 for c in image[y, x, :3]]
+        expected = [_srgb(c) for c in _neutral(rgb)] + [alpha]
+        assert np.allclose(display[y, x], expected, rtol=0, atol=1e-9), (y, x)
+
+
+def test_display_codes_are_the_quantized_display():
+    # The batch's shortcut must give the codes of the documented two steps, at 8 and 16 bits.
+    rng = np.random.default_rng(12)
+    image = rng.uniform(-0.2, 3.0, (32, 32, 4)).astype(np.float32)
+    image[..., 3] = rng.uniform(-0.1, 1.1, (32, 32))
+    image[:10, :, :3] = 0.0
+    for bits in (8, 16):
+        codes = display_codes(image, exposure=-0.5, tone_map="neutral", bits=bits)
+        expected = quantize(to_display(image, exposure=-0.5, tone_map="neutral"), bits)
+        assert codes.dtype == expected.dtype and np.array_equal(codes, expected)
+
+
+def _neutral(rgb: list[float]) -> list[float]:
+    x = min(rgb)
+    offset = x - 6.25 * x * x if x < 0.08 else 0.04
+    rgb = [c - offset for c in rgb]
+    peak = max(rgb)
+    if peak < 0.76:
+        return rgb
+    d = 1.0 - 0.76
+    new_peak = 1.0 - d * d / (peak + d - 0.76)
+    g = 1.0 - 1.0 / (0.15 * (peak - new_peak) + 1.0)
+    return [c * new_peak / peak * (1.0 - g) + new_peak * g for c in rgb]
+
+
+def _srgb(v: float) -> float:
+    v = min(max(v, 0.0), 1.0)
+    return 12.92 * v if v <= 0.0031308 else 1.055 * v ** (1 / 2.4) - 0.055
 
 
 def test_exposure_is_in_stops():

@@ -22,6 +22,7 @@ from shots.presets import FileCameraShot, Preset, ViewsShot
 DEFAULT_VARIANT = "default"  # the model's own materials, not a KHR_materials_variants variant
 GLB_MAGIC = b"glTF"
 HASH_BLOCK = 1 << 20
+TAIL_SHARE = 2  # a chunk is at most 1/(TAIL_SHARE × workers) of the frames left
 
 
 # --- hashing ----------------------------------------------------------------------------------
@@ -187,27 +188,29 @@ def chunk_tasks(jobs: list[ModelVariantJob], workers: int, preset: Preset, prese
                 bits: int, exr: bool) -> list[RenderTask]:
     """Split the pending frames into tasks, largest jobs first.
 
-    One worker takes each job whole (a model is loaded once). Several workers get chunks of
-    about a third of their fair share, so the last chunks finish close together, while a large
-    catalog still keeps each model in one chunk.
+    One worker takes each job whole (a model is loaded once). For several workers, chunks
+    shrink as the work left does (guided scheduling): each is at most the frames still to hand
+    out divided by ``TAIL_SHARE`` × workers, so a large catalog keeps each model in one chunk
+    while the last chunks are single frames and the workers finish close together. A worker
+    keeps the model it loaded last, so the chunks of a model cost one load per worker.
     """
     total = sum(len(job.pending) for job in jobs)
     if total == 0:
         return []
-    size = total if workers <= 1 else max(1, math.ceil(total / (3 * workers)))
+    left = total
     tasks = []
     for job in sorted(jobs, key=lambda j: -len(j.pending)):
-        pieces = math.ceil(len(job.pending) / size)
-        for k in range(pieces):
-            start, stop = _bounds(len(job.pending), pieces, k)
+        start = 0
+        while start < len(job.pending):
+            stop = len(job.pending)
+            if workers > 1:  # the job's rest in near-equal pieces of at most the guided size
+                pieces = math.ceil((stop - start) / math.ceil(left / (TAIL_SHARE * workers)))
+                stop = start + math.ceil((stop - start) / pieces)
             frames = tuple((f.shot, f.index) for f in job.pending[start:stop])
             tasks.append(
                 RenderTask(job.model, job.inputs_sha256, job.variant, frames, preset, preset_hash,
                            bits, exr)
             )
+            left -= stop - start
+            start = stop
     return tasks
-
-
-def _bounds(count: int, pieces: int, k: int) -> tuple[int, int]:
-    """Piece ``k`` of ``count`` items split into ``pieces`` near-equal runs."""
-    return count * k // pieces, count * (k + 1) // pieces

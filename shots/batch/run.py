@@ -27,7 +27,7 @@ from shots.batch.catalog import CatalogModel, find_models
 from shots.batch.jobs import DEFAULT_VARIANT, FrameId, ModelVariantJob, RenderTask
 from shots.batch.layout import CONTACT_SHEET, INDEX_CSV, INDEX_JSON, Layout
 from shots.batch.progress import Reporter
-from shots.batch.runner import WORKER_DIED, available_cores, make_runner
+from shots.batch.runner import WORKER_DIED, ProcessRunner, available_cores, make_runner
 from shots.batch.sheet import CELL, SheetCell, contact_sheet_bytes
 from shots.batch.worker import TaskResult, exr_available, probe_variants, render_task
 from shots.errors import BatchError
@@ -142,6 +142,7 @@ def run_batch(
     animations: tuple[str, ...] = encode.ANIMATION_FORMATS,
     fps: float = 12.0,
     threads: int | None = None,
+    pool: ProcessRunner | None = None,
     console=None,
 ) -> BatchSummary:
     """Render a catalog: every model of ``source`` × variants × every shot of ``preset``.
@@ -161,6 +162,8 @@ def run_batch(
     bits : PNG bit depth, 8 or 16. exr : also write linear premultiplied EXR files.
     animations : formats for shots that move the camera ("gif", "webp", "mp4").
     fps : animation frame rate. threads : numba threads per worker (default cores // workers).
+    pool : worker processes shared by several batches (``shots.batch.runner.local_workers``);
+        used instead of starting ``workers`` processes, and left running.
 
     Raises
     ------
@@ -186,7 +189,7 @@ def run_batch(
         preset=preset, layout=Layout.create(Path(out_dir), template),
         models=find_models(Path(source)), variants=variants, force=force,
         workers=workers, cluster=cluster, bits=bits, exr=exr, animations=tuple(animations),
-        fps=float(fps), threads=threads,
+        fps=float(fps), threads=threads, pool=pool,
     )
     with Reporter(quiet=quiet, log_json=Path(log_json) if log_json else None,
                   console=console) as reporter:
@@ -207,7 +210,7 @@ class Batch:
     def __init__(self, preset: Preset, layout: Layout, models: list[CatalogModel],
                  variants: str, force: bool, workers: int | None, cluster: str | None,
                  bits: int, exr: bool, animations: tuple[str, ...], fps: float,
-                 threads: int | None):
+                 threads: int | None, pool: ProcessRunner | None = None):
         self.preset = preset
         self.layout = layout
         self.variant_choice = variants
@@ -217,6 +220,7 @@ class Batch:
         self.bits = bits
         self.fps = fps
         self.threads = threads
+        self.pool = None if cluster else pool
         self.notes: list[str] = []
         self.exr = exr and self._exr_writer()
         self.animations = self._encoders(animations)
@@ -306,7 +310,7 @@ class Batch:
                 reporter.totals(len(self.states), self._frame_total())
                 self._render(self._tasks())
             finally:
-                if self.runner is not None:
+                if self.runner is not None and self.runner is not self.pool:
                     self.runner.close()
             index, sheet = self._write_catalog()
             report = self._check_consistency()
@@ -342,7 +346,9 @@ class Batch:
 
     def _get_runner(self, frames: int):
         """The runner, started on first use with no more local workers than ``frames``."""
-        if self.runner is None:
+        if self.runner is None and self.pool is not None:
+            self.runner = self.pool
+        elif self.runner is None:
             workers = max(1, min(self.workers, frames))
             self.runner = make_runner(workers, self.cluster, self.threads)
         return self.runner
@@ -629,7 +635,9 @@ class Batch:
         if kind in ("gif", "mp4"):
             settings["background"] = list(self._flatten_colour())
         if kind == "mp4":
-            settings["crf"] = encode.MP4_CRF
+            settings.update(crf=encode.MP4_CRF, preset=encode.MP4_PRESET)
+        if kind == "webp":
+            settings["method"] = encode.WEBP_METHOD
         return settings
 
     def _flatten_colour(self) -> tuple[float, float, float]:

@@ -12,6 +12,7 @@ import os
 from collections.abc import Callable
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
+from contextlib import contextmanager
 from urllib.parse import urlsplit
 
 from shots.batch import worker
@@ -164,6 +165,21 @@ class DaskRunner:
 
     def close(self) -> None:
         self._client.close()
+
+
+@contextmanager
+def local_workers(workers: int | None = None, threads: int | None = None):
+    """Worker processes kept for several batches: ``run_batch(..., pool=...)`` in the block.
+
+    Each batch would otherwise start its own processes, and a worker's start (interpreter,
+    imports, numba's cached kernels) costs it a second or two of CPU before its first frame.
+    Processes start when the first task needs them and stop when the block ends.
+    """
+    runner = ProcessRunner(workers or available_cores(), threads)
+    try:
+        yield runner
+    finally:
+        runner.close()
 
 
 def make_runner(workers: int, cluster: str | None, threads: int | None = None):

@@ -203,15 +203,14 @@ def _prepared_variant(loaded: dict, variant: str, result: TaskResult):
 
 
 def _render_one(prepared, frame, task: RenderTask) -> RenderedImage:
-    from shots.colour import to_display
-    from shots.output import png_bytes
+    from shots.colour import display_codes
+    from shots.output import encode_png
     from shots.render import render_frame
 
     start = time.perf_counter()
     rgba = render_frame(prepared, frame.camera, frame.look)
     rendered = time.perf_counter()
-    display = to_display(rgba, exposure=frame.look.exposure, tone_map=frame.look.tone_map)
-    png = png_bytes(display, task.bits)
+    png = encode_png(display_codes(rgba, frame.look.exposure, frame.look.tone_map, task.bits))
     exr = exr_bytes(rgba) if task.exr else None
     return RenderedImage(
         shot=frame.shot, index=frame.index, view=frame.view, camera=frame.to_json(),
