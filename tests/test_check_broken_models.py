@@ -58,15 +58,15 @@ INTACT = [
 CHAIR, LAMP, TABLE = "tavlund_ekra_chair", "tavlund_liora_lamp", "tavlund_rolvan_table"
 LIMITS = Tolerances()  # the batch checks with the default tolerances
 
-# The shipped thumbnail preset at 96 px, floor at the file's y = 0.
-THUMBNAILS = f"""
-extends = "thumbnail"
+# 96 px frames with the floor at the file's y = 0 (where a Z-up export sinks through it).
+SMALL_ON_FILE_FLOOR = f"""
 [image]
 width = {SIZE}
 height = {SIZE}
 [ground]
 height = 0.0
 """
+THUMBNAILS = 'extends = "thumbnail"' + SMALL_ON_FILE_FLOOR  # the shipped thumbnail, small
 
 
 def lineup_preset() -> str:
@@ -98,13 +98,7 @@ projection = "orthographic"
 # 2 · distance · 18/85 metres across (pinhole camera), about 2.4 m here: the widest product (the
 # 2 m sofa) and the tallest (the 1.8 m bookcase) fit.
 LOCKED_EYE, LOCKED_TARGET, LOCKED_FOCAL = (0.0, 1.9, 5.6), (0.0, 0.9, 0.0), 85.0
-LOCKED = f"""
-extends = "thumbnail"
-[image]
-width = {SIZE}
-height = {SIZE}
-[ground]
-height = 0.0
+LOCKED = THUMBNAILS + f"""
 [[shots]]
 name = "locked"
 kind = "path"
