@@ -24,7 +24,7 @@ from shots.accel import (
     offset_origins,
     sah_cost,
 )
-from shots.kernels import bvh_build
+from shots.kernels import bvh_build, traverse
 from shots.kernels.bvh_build import LINK_ROW, MAX_LEAF
 from shots.kernels.traverse import any_hit_one, closest_hit_one, new_stack
 
@@ -452,6 +452,59 @@ def test_batches_equal_single_ray_functions():
     for a, b in zip(batch, one, strict=True):
         assert a.tobytes() == b.tobytes()
     assert intersect_any(bvh, origins, directions, 0.0, t_max).tobytes() == occluded_one.tobytes()
+
+
+def pinhole_rays(positions, size, fov_deg=40.0):
+    """Row-major camera rays of a size×size pinhole looking at the mesh from above the front."""
+    lo, hi = positions.min(0), positions.max(0)
+    eye = (lo + hi) / 2 + np.array([0.4, -1.0, 0.8]) * np.linalg.norm(hi - lo)
+    forward = ((lo + hi) / 2 - eye) / np.linalg.norm((lo + hi) / 2 - eye)
+    right = np.cross(forward, [0.0, 0.0, 1.0])
+    right /= np.linalg.norm(right)
+    up = np.cross(right, forward)
+    s = ((np.arange(size) + 0.5) / size * 2 - 1) * np.tan(np.radians(fov_deg / 2))
+    py, px = np.meshgrid(-s, s, indexing="ij")
+    d = (forward + px[..., None] * right + py[..., None] * up).reshape(-1, 3)
+    return np.broadcast_to(eye, d.shape).astype(np.float32), d.astype(np.float32)
+
+
+def test_coherent_chunks_are_traced_in_turn_with_the_same_answers():
+    # Chunks of camera rays go through the ray-after-ray path, random rays through the lanes;
+    # both must give every ray the single-ray functions' answer, bit for bit.
+    positions, triangles = MESHES["furniture"]
+    bvh = build_bvh(positions, triangles)
+    size = traverse.scene_size(bvh.node_bounds, bvh.tri_verts)
+    cam_o, cam_d = pinhole_rays(positions, 512)
+    rnd_o, rnd_d = sample_rays(positions, triangles, seed=41)
+    chunk = traverse.CHUNK
+    assert traverse.is_coherent(cam_o, cam_d, 0, chunk, size)  # 0.0014 rad per pixel
+    assert not traverse.is_coherent(rnd_o, rnd_d, 0, chunk, size)
+    wide_o, wide_d = pinhole_rays(positions, 128)  # 0.0055 rad per pixel: lanes
+    assert not traverse.is_coherent(wide_o, wide_d, 0, chunk, size)
+    # Camera rays that start from scattered points are not coherent either.
+    moved = cam_o + np.random.default_rng(4).uniform(-0.1, 0.1, cam_o.shape).astype(np.float32)
+    assert not traverse.is_coherent(moved, cam_d, 0, chunk, size)
+    # A tree too large for the cache is always traced in lanes (they overlap its cache misses).
+    assert 0.0 < size and traverse.scene_size(bvh.node_bounds, np.empty((1 << 20, 9), np.float32)) == 0.0
+    assert not traverse.is_coherent(cam_o, cam_d, 0, chunk, 0.0)
+    middle = slice(len(cam_o) // 2, len(cam_o) // 2 + 8 * chunk)  # 16 scanlines across the model
+    origins = np.ascontiguousarray(np.concatenate([cam_o[middle], rnd_o]))
+    directions = np.ascontiguousarray(np.concatenate([cam_d[middle], rnd_d]))
+    t_max = np.random.default_rng(6).uniform(0.0, 3.0, len(origins)).astype(np.float32)
+    *one, occluded_one = _trace_one_by_one(*bvh, origins, directions, t_max)
+    hits = intersect_closest(bvh, origins, directions)
+    for a, b in zip(hits, one, strict=True):
+        assert a.tobytes() == b.tobytes()
+    assert intersect_any(bvh, origins, directions, 0.0, t_max).tobytes() == occluded_one.tobytes()
+    assert 0.05 < (hits[1][: 8 * chunk] >= 0).mean() < 0.95  # the camera sees model and background
+    # The lane kernels agree with the in-turn ones on the coherent chunk too.
+    r = 8 * chunk
+    lanes = [np.empty(r, np.float32), np.empty(r, np.int32), np.empty(r, np.float32),
+             np.empty(r, np.float32)]  # fmt: skip
+    t0, t1 = np.zeros(r, np.float32), np.full(r, np.inf, np.float32)
+    traverse.closest_hits_range(*bvh, origins[:r], directions[:r], t0, t1, 0, r, *lanes)
+    for a, b in zip(lanes, hits, strict=True):
+        assert a.tobytes() == b[:r].tobytes()
 
 
 def binary_depth(positions, triangles):
