@@ -162,6 +162,9 @@ class RenderTask:
     frames : (shot, index) pairs to render, in order.
     preset, preset_sha256 : the resolved preset and its hash.
     bits : PNG bit depth. exr : also return linear EXR bytes.
+    animated : shots whose every frame goes into an animation; their frames, and the first
+        frame of every shot (contact sheet, consistency report), come back as 8-bit codes too,
+        so the batch need not decode the PNG files it has just written.
     """
 
     model: str
@@ -172,6 +175,11 @@ class RenderTask:
     preset_sha256: str
     bits: int = 8
     exr: bool = False
+    animated: tuple[str, ...] = ()
+
+    def wants_codes(self, shot: str, index: int) -> bool:
+        """Whether frame ``index`` of ``shot`` comes back with its 8-bit codes."""
+        return self.bits == 8 and (index == 0 or shot in self.animated)
 
 
 @dataclass
@@ -185,7 +193,7 @@ class ModelVariantJob:
 
 
 def chunk_tasks(jobs: list[ModelVariantJob], workers: int, preset: Preset, preset_hash: str,
-                bits: int, exr: bool) -> list[RenderTask]:
+                bits: int, exr: bool, animated: tuple[str, ...] = ()) -> list[RenderTask]:
     """Split the pending frames into tasks, largest jobs first.
 
     One worker takes each job whole (a model is loaded once). For several workers, chunks
@@ -209,7 +217,7 @@ def chunk_tasks(jobs: list[ModelVariantJob], workers: int, preset: Preset, prese
             frames = tuple((f.shot, f.index) for f in job.pending[start:stop])
             tasks.append(
                 RenderTask(job.model, job.inputs_sha256, job.variant, frames, preset, preset_hash,
-                           bits, exr)
+                           bits, exr, animated)
             )
             left -= stop - start
             start = stop

@@ -82,6 +82,14 @@ class Reporter:
         if self.progress is not None:
             self.progress.advance(self.models_bar)
 
+    def hint(self, model: str, listed_as: str, text: str) -> None:
+        """A units or up-axis hint about a model (``shots.hints``): one unwrapped line naming
+        the file and the preset key that fixes it, as ``shots render`` prints it."""
+        self.event("hint", model=model, file=listed_as, hint=text)
+        if not self.quiet:
+            self.console.print(f"[yellow]warning:[/] {escape(listed_as)}: {escape(text)}",
+                               highlight=False, soft_wrap=True)
+
     def note(self, message: str) -> None:
         """A line for people (not in quiet mode)."""
         if not self.quiet:

@@ -28,8 +28,10 @@ from shots.batch.jobs import DEFAULT_VARIANT, FrameId, ModelVariantJob, RenderTa
 from shots.batch.layout import CONTACT_SHEET, INDEX_CSV, INDEX_JSON, Layout
 from shots.batch.progress import Reporter
 from shots.batch.runner import WORKER_DIED, ProcessRunner, available_cores, make_runner
-from shots.batch.sheet import CELL, SheetCell, contact_sheet_bytes
+from shots.batch.sheet import CELL, SheetCell, contact_sheet_bytes, thumbnail
 from shots.batch.worker import TaskResult, exr_available, probe_variants, render_task
+from shots.check.judge import Tolerances
+from shots.check.measure import measure_codes
 from shots.errors import BatchError
 from shots.output import atomic_write_bytes
 from shots.presets import OrbitShot, PathShot, Preset, TurntableShot, load_preset
@@ -105,7 +107,10 @@ class ModelState:
     entries: dict[FrameId, dict] = field(default_factory=dict)
     pending: set[FrameId] = field(default_factory=set)
     animations: dict[tuple, dict] = field(default_factory=dict)
+    pictures: dict[FrameId, object] = field(default_factory=dict)  # 8-bit codes to animate
     warnings: set[str] = field(default_factory=set)
+    hints: list[str] = field(default_factory=list)  # shots.hints, from the load or the manifest
+    hints_shown: bool = False
     timings: dict[str, float] = field(default_factory=dict)
     rendered: int = 0
     skipped: int = 0
@@ -230,6 +235,11 @@ class Batch:
         self.counts = dict(jobs.shot_frame_counts(preset))
         self.moving = {s.name for s in preset.shots
                        if isinstance(s, TurntableShot | OrbitShot | PathShot)}
+        self.animated = tuple(sorted(s for s in self.moving if self.counts[s] > 1)) \
+            if self.animations else ()
+        # first frames measured and shrunk as they arrive, so the end of the run reads no PNG
+        self.measured: dict[Path, object] = {}
+        self.thumbnails: dict[Path, object] = {}
         self.states = [ModelState(entry) for entry in models]
         self.by_key = {state.key: state for state in self.states}
         self.owners: dict[str, str] = {}  # output path → model that writes it
@@ -338,7 +348,7 @@ class Batch:
         images = [path for path in images if path.is_file()]
         if not images:
             return None
-        return check_renders(images, report_dir=self.layout.out_dir)
+        return check_renders(images, report_dir=self.layout.out_dir, measured=self.measured)
 
     def _frame_total(self) -> int:
         per_variant = sum(self.counts.values())
@@ -370,6 +380,8 @@ class Batch:
             if isinstance(old.get("variants"), list):
                 state.available = [str(v) for v in old["variants"]]
             state.warnings.update(str(w) for w in old.get("warnings", []))
+            if old.get("preset_sha256") == self.preset_hash and isinstance(old.get("hints"), list):
+                state.hints = [str(h) for h in old["hints"]]
         if self.variant_choice == "default":
             state.variants = [DEFAULT_VARIANT]
         elif state.available is not None:
@@ -391,6 +403,7 @@ class Batch:
                 state = futures[future]
                 result = runner.result(future, state.key, DEFAULT_VARIANT)
                 state.add_time("load_s", result.load_seconds)
+                self._show_hints(state, result)
                 if result.failure is not None:
                     self._fail(state, result.failure.message, [])
                     continue
@@ -482,7 +495,7 @@ class Batch:
         # chunks are cut for the runner's size: a cluster's threads, else the local workers
         workers = self._get_runner(sum(len(j.pending) for j in variant_jobs)).workers
         return jobs.chunk_tasks(variant_jobs, workers, self.preset, self.preset_hash, self.bits,
-                               self.exr)
+                               self.exr, self.animated)
 
     def _render(self, tasks: list[RenderTask]) -> None:
         if not tasks:
@@ -523,6 +536,7 @@ class Batch:
         state.add_time("load_s", result.load_seconds)
         state.add_time("prepare_s", result.prepare_seconds)
         state.warnings.update(result.warnings)
+        self._show_hints(state, result)
         if result.variants:
             state.available = list(result.variants)
         if state.error is not None or result.failure is not None:
@@ -539,6 +553,8 @@ class Batch:
                 exr_path = Path(path).with_suffix(".exr").as_posix()
                 atomic_write_bytes(self.layout.absolute(exr_path), image.exr)
             write_seconds = time.perf_counter() - start
+            if image.codes is not None:
+                self._keep_codes(state, frame, self.layout.absolute(path), image.codes)
             state.entries[frame] = self._frame_entry(state, frame, image, path, exr_path,
                                                      write_seconds)
             state.pending.discard(frame)
@@ -548,9 +564,36 @@ class Batch:
             state.add_time("write_s", write_seconds)
             self.reporter.frame("rendered", state.name, frame.variant, frame.shot, frame.index,
                                 path, round(image.render_seconds, 4))
-        self._write_manifest(state)
+        if state.pending or self._moves(state):  # else _finish writes it at once
+            self._write_manifest(state)
         if not state.pending:
             self._finish(state)
+
+    def _moves(self, state: ModelState) -> bool:
+        """Whether the model has animations to make once its frames are in."""
+        return bool(self.animated and state.variants)
+
+    def _show_hints(self, state: ModelState, result: TaskResult | None = None) -> None:
+        """Print the model's hints once: those of a worker's load, else (a model with nothing
+        to render) those its manifest kept."""
+        if result is not None and result.failure is not None and not result.hints:
+            return  # the load failed before any hint was read
+        if result is not None:
+            state.hints = list(result.hints)
+        if state.hints_shown:
+            return
+        state.hints_shown = True
+        for text in state.hints:
+            self.reporter.hint(state.name, state.entry.listed_as, text)
+
+    def _keep_codes(self, state: ModelState, frame: FrameId, path: Path, codes) -> None:
+        """Use a frame's 8-bit codes now (first frames: report and contact sheet) or keep them
+        for its animation, instead of decoding its PNG file later."""
+        if frame.index == 0:
+            self.measured[path] = measure_codes(codes, path, Tolerances().mask_rules())
+            self.thumbnails[path] = thumbnail(codes, self._sheet_background())
+        if frame.shot in self.animated:
+            state.pictures[frame] = codes
 
     def _frame_entry(self, state, frame: FrameId, image, path, exr_path, write_seconds) -> dict:
         return {
@@ -594,12 +637,14 @@ class Batch:
             for shot in self.preset.shots:
                 if shot.name in self.moving and self.counts[shot.name] > 1:
                     self._animate(state, variant, shot.name, old)
+        state.pictures.clear()
         written = self.animations_written - before
         if state.rendered or written:
             state.add_time("animate_s", time.perf_counter() - started)
         elif state.old is not None:  # nothing new: the timings of the run that made the files
             state.timings = dict(state.old.get("timings") or {})
         state.done = True
+        self._show_hints(state)
         self._write_manifest(state)
         self.reporter.model_done(state.name, failed=False)
 
@@ -618,7 +663,8 @@ class Batch:
                 wanted[kind] = (path, key)
         if not wanted:
             return
-        pictures = [encode.read_rgba8(self.layout.absolute(state.paths[f])) for f in frames]
+        pictures = [state.pictures[f] if f in state.pictures
+                    else encode.read_rgba8(self.layout.absolute(state.paths[f])) for f in frames]
         encoded = encode.encode_animations(tuple(wanted), pictures, self.fps,
                                            self._flatten_colour())
         height, width = pictures[0].shape[:2]
@@ -661,6 +707,7 @@ class Batch:
             "variants": state.available or [],
             "rendered_variants": state.variants,
             "warnings": sorted(state.warnings),
+            "hints": sorted(state.hints),
         }
 
     def _write_manifest(self, state: ModelState) -> None:
@@ -709,18 +756,24 @@ class Batch:
         rows = []
         for state in finished:
             for variant in state.variants:
+                paths = [self.layout.absolute(state.paths[FrameId(variant, shot.name, 0)])
+                         for shot in self.preset.shots]
                 rows.append([
-                    SheetCell(self.layout.absolute(state.paths[FrameId(variant, shot.name, 0)]),
-                              state.name, f"{variant} / {shot.name}")
-                    for shot in self.preset.shots
+                    SheetCell(path, state.name, f"{variant} / {shot.name}",
+                              self.thumbnails.get(path))
+                    for path, shot in zip(paths, self.preset.shots, strict=True)
                 ])
         if not rows:
             return None
-        background = CELL if self.preset.background.kind == "transparent" else \
-            self._flatten_colour()
         path = self.layout.absolute(CONTACT_SHEET)
-        manifest.write_if_changed(path, contact_sheet_bytes(rows, background))
+        manifest.write_if_changed(path, contact_sheet_bytes(rows, self._sheet_background()))
         return path
+
+    def _sheet_background(self) -> tuple[float, float, float]:
+        """The display colour the contact sheet puts behind transparent pixels."""
+        if self.preset.background.kind == "transparent":
+            return CELL
+        return self._flatten_colour()
 
     def _outcome(self, state: ModelState) -> ModelOutcome:
         return ModelOutcome(model=state.name, listed_as=state.entry.listed_as,

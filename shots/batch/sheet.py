@@ -24,11 +24,13 @@ CELL = (0.92, 0.92, 0.92)  # display grey behind transparent renders, so white p
 
 @dataclass(frozen=True)
 class SheetCell:
-    """A thumbnail: the image file and two caption lines."""
+    """A thumbnail: the image file and two caption lines; ``picture``, when given, is the
+    thumbnail already made from that file's pixels (``thumbnail``), so the file is not read."""
 
     image: Path
     title: str
     subtitle: str
+    picture: Image.Image | None = None
 
 
 def contact_sheet_bytes(rows: list[list[SheetCell]], background=CELL) -> bytes:
@@ -51,7 +53,9 @@ def contact_sheet_bytes(rows: list[list[SheetCell]], background=CELL) -> bytes:
     for r, row in enumerate(rows):
         for c, cell in enumerate(row):
             x, y = c * cell_w + PAD, r * cell_h + PAD
-            thumb = _thumbnail(cell.image, background)
+            thumb = cell.picture
+            if thumb is None:
+                thumb = thumbnail(read_rgba8(cell.image), background)
             sheet.paste(thumb, (x + (THUMB - thumb.width) // 2, y + (THUMB - thumb.height) // 2))
             for line, text in enumerate((cell.title, cell.subtitle)):
                 draw.text((x, y + THUMB + 2 + line * LINE_HEIGHT), _fit(draw, font, text),
@@ -61,8 +65,9 @@ def contact_sheet_bytes(rows: list[list[SheetCell]], background=CELL) -> bytes:
     return buffer.getvalue()
 
 
-def _thumbnail(path: Path, background) -> Image.Image:
-    rgb = flatten(read_rgba8(path), background)
+def thumbnail(rgba: np.ndarray, background) -> Image.Image:
+    """The sheet's thumbnail of (h, w, 4) uint8 RGBA codes, flattened onto ``background``."""
+    rgb = flatten(rgba, background)
     image = Image.fromarray(np.ascontiguousarray(rgb), "RGB")
     scale = min(1.0, THUMB / max(image.width, image.height))  # shrink, never enlarge
     size = (max(1, round(image.width * scale)), max(1, round(image.height * scale)))

@@ -47,6 +47,7 @@ class RenderedImage:
     exr: bytes | None
     render_seconds: float
     encode_seconds: float
+    codes: object = None  # (h, w, 4) uint8 display codes when the task wants them
 
 
 @dataclass
@@ -60,6 +61,7 @@ class TaskResult:
     load_seconds: float = 0.0
     prepare_seconds: float = 0.0
     warnings: tuple[str, ...] = ()
+    hints: tuple[str, ...] = ()  # units / up-axis hints on the model as loaded (shots.hints)
     failure: Failure | None = None
 
 
@@ -167,18 +169,25 @@ def _loaded_model(model: str, hashes: tuple[str, str], preset, result: TaskResul
     preset, ``hashes`` = (inputs hash, preset hash)) are the same."""
     key = (model, *hashes)
     if _cache.get("key") == key:
+        result.hints = _cache["value"]["hints"]
         return _cache["value"]
     _cache.clear()
     from shots.gltf import load_scene
+    from shots.hints import model_hints
     from shots.planner import plan_frames
     from shots.presets import apply_model_fixes
 
     start = time.perf_counter()
-    scene = apply_model_fixes(load_scene(Path(model)), preset)
+    loaded = load_scene(Path(model))
+    # as `shots render` does: hints only when the preset leaves units and up axis to glTF
+    unfixed = preset.model.units == "m" and preset.model.up_axis == "y"
+    hints = tuple(model_hints(loaded)) if unfixed else ()
+    scene = apply_model_fixes(loaded, preset)
     frames = {(f.shot, f.index): f for f in plan_frames(preset, scene)}
     result.load_seconds += time.perf_counter() - start
     result.warnings = tuple(scene.warnings)
-    value = {"scene": scene, "frames": frames, "prepared": {}}
+    result.hints = hints
+    value = {"scene": scene, "frames": frames, "prepared": {}, "hints": hints}
     _cache.update(key=key, value=value)
     return value
 
@@ -210,12 +219,14 @@ def _render_one(prepared, frame, task: RenderTask) -> RenderedImage:
     start = time.perf_counter()
     rgba = render_frame(prepared, frame.camera, frame.look)
     rendered = time.perf_counter()
-    png = encode_png(display_codes(rgba, frame.look.exposure, frame.look.tone_map, task.bits))
+    codes = display_codes(rgba, frame.look.exposure, frame.look.tone_map, task.bits)
+    png = encode_png(codes)
     exr = exr_bytes(rgba) if task.exr else None
     return RenderedImage(
         shot=frame.shot, index=frame.index, view=frame.view, camera=frame.to_json(),
         seed=frame.seed, png=png, exr=exr, render_seconds=rendered - start,
         encode_seconds=time.perf_counter() - rendered,
+        codes=codes if task.wants_codes(frame.shot, frame.index) else None,
     )
 
 

@@ -13,7 +13,7 @@ from shots.check.judge import (
     exposure_stops,
     reasons_for,
 )
-from shots.check.measure import measure_image
+from shots.check.measure import Measurement, measure_image
 from shots.check.report import (
     CheckReport,
     ImageCheck,
@@ -38,6 +38,7 @@ def check_renders(
     tolerances: Tolerances | Mapping[str, object] | None = None,
     *,
     report_dir: str | os.PathLike | None = None,
+    measured: Mapping[Path, Measurement] | None = None,
 ) -> CheckReport:
     """Measure every PNG image, flag the ones that do not match the catalog, write the report.
 
@@ -48,6 +49,8 @@ def check_renders(
     tolerances : ``Tolerances``, or a mapping of overrides such as a preset's ``[check]`` table.
     report_dir : where report.md and report.json go; default ``out_dir`` when it is one folder,
         else the deepest folder holding every listed path.
+    measured : measurements already taken (by image path, with ``tolerances``' mask rules), used
+        instead of reading those files again; a batch measures its frames as they arrive.
 
     Returns
     -------
@@ -66,7 +69,7 @@ def check_renders(
     sources = source_paths(out_dir)
     images = find_images(sources)
     folder = Path(report_dir) if report_dir is not None else default_report_folder(sources)
-    report = judge_images(images, folder, tolerances)
+    report = judge_images(images, folder, tolerances, measured)
     markdown_path, json_path = folder / "report.md", folder / "report.json"
     write_if_changed(markdown_path, report_markdown(report).encode("utf-8"))
     write_if_changed(json_path, report_json(report).encode("utf-8"))
@@ -81,11 +84,17 @@ def check_renders(
     )
 
 
-def judge_images(images: list[Path], folder: Path, tolerances: Tolerances) -> CheckReport:
-    """Measure ``images`` and judge each against the others (nothing is written)."""
+def judge_images(images: list[Path], folder: Path, tolerances: Tolerances,
+                 known: Mapping[Path, Measurement] | None = None) -> CheckReport:
+    """Measure ``images`` (those not in ``known``) and judge each against the others (nothing
+    is written)."""
     rules = tolerances.mask_rules()
+    known = known or {}
     measured, unreadable = {}, {}
     for path in images:
+        if path in known:
+            measured[path] = known[path]
+            continue
         try:
             measured[path] = measure_image(path, rules)
         except (OSError, ValueError) as exc:
