@@ -469,23 +469,23 @@ def pinhole_rays(positions, size, fov_deg=40.0):
 
 
 def test_coherent_chunks_are_traced_in_turn_with_the_same_answers():
-    # Chunks of camera rays go through the ray-after-ray path, random rays through the lanes;
-    # both must give every ray the single-ray functions' answer, bit for bit.
+    # Chunks of camera rays go through the ray-after-ray path of closest_hits, random rays through
+    # the lanes; both must give every ray the single-ray functions' answer, bit for bit.
     positions, triangles = MESHES["furniture"]
     bvh = build_bvh(positions, triangles)
-    size = traverse.scene_size(bvh.node_bounds, bvh.tri_verts)
+    scale = traverse.coherence_scale(bvh.node_bounds, bvh.tri_verts)
     cam_o, cam_d = pinhole_rays(positions, 512)
     rnd_o, rnd_d = sample_rays(positions, triangles, seed=41)
     chunk = traverse.CHUNK
-    assert traverse.is_coherent(cam_o, cam_d, 0, chunk, size)  # 0.0014 rad per pixel
-    assert not traverse.is_coherent(rnd_o, rnd_d, 0, chunk, size)
+    assert traverse.is_coherent(cam_o, cam_d, 0, chunk, scale)  # 0.0014 rad per pixel
+    assert not traverse.is_coherent(rnd_o, rnd_d, 0, chunk, scale)
     wide_o, wide_d = pinhole_rays(positions, 128)  # 0.0055 rad per pixel: lanes
-    assert not traverse.is_coherent(wide_o, wide_d, 0, chunk, size)
+    assert not traverse.is_coherent(wide_o, wide_d, 0, chunk, scale)
     # Camera rays that start from scattered points are not coherent either.
     moved = cam_o + np.random.default_rng(4).uniform(-0.1, 0.1, cam_o.shape).astype(np.float32)
-    assert not traverse.is_coherent(moved, cam_d, 0, chunk, size)
+    assert not traverse.is_coherent(moved, cam_d, 0, chunk, scale)
     # A tree too large for the cache is always traced in lanes (they overlap its cache misses).
-    assert 0.0 < size and traverse.scene_size(bvh.node_bounds, np.empty((1 << 20, 9), np.float32)) == 0.0
+    assert 0.0 < scale and traverse.coherence_scale(bvh.node_bounds, np.empty((1 << 20, 9), np.float32)) == 0.0
     assert not traverse.is_coherent(cam_o, cam_d, 0, chunk, 0.0)
     middle = slice(len(cam_o) // 2, len(cam_o) // 2 + 8 * chunk)  # 16 scanlines across the model
     origins = np.ascontiguousarray(np.concatenate([cam_o[middle], rnd_o]))
