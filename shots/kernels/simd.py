@@ -91,3 +91,21 @@ def slab4(typingctx, bounds, node, nx, ny, nz, ox, oy, oz, ix, iy, iz, t_lo, t_h
         return cgutils.pack_array(builder, lanes)
 
     return sig, codegen
+
+
+@intrinsic
+def entry_key(typingctx, t, link):
+    """One int64 that orders (entry distance, link) pairs as the distance does: the float32's
+    bits turned into an order-preserving signed integer (negative values mirrored) in the upper
+    half, the link's 32 bits in the lower. Integer min/max sort such keys without a branch."""
+    sig = types.int64(t, link)
+
+    def codegen(context, builder, signature, args):
+        i32, i64 = ir.IntType(32), ir.IntType(64)
+        bits = builder.bitcast(args[0], i32)
+        mirror = builder.and_(builder.ashr(bits, i32(31)), i32(0x7FFFFFFF))
+        ordered = builder.sext(builder.xor(bits, mirror), i64)
+        low = builder.zext(builder.trunc(args[1], i32), i64)
+        return builder.or_(builder.shl(ordered, i64(32)), low)
+
+    return sig, codegen

@@ -26,7 +26,9 @@ way each ray gets exactly what the single-ray functions return, independent of t
 threads.
 
 Traversal is ordered: nearest child first, farther children on a small fixed stack with their
-entry distance, so they are skipped once a closer hit is known. The four child boxes of a node
+entry distance, so they are skipped once a closer hit is known. A stack entry is one int64 key
+(``simd.entry_key``: distance bits above, link below), so the children sort with integer
+min/max, which compile to conditional moves rather than branches. The four child boxes of a node
 are tested at once (``simd.slab4``) with the robust slab test of Ize (JCGT 2(2), 2013; as in
 Pharr, Jakob & Humphreys, PBR 3rd ed. §3.9.2): exit distances are widened by 1 + 2·gamma(3) so
 float32 rounding never culls a box the ray touches. Data-dependent choices are written as selects
@@ -39,17 +41,17 @@ import numpy as np
 from numba import njit, prange
 
 from shots.kernels.bvh_build import LEAF_BITS, LINK_ROW, MAX_LEAF, WIDTH
-from shots.kernels.simd import prefetch_row, slab4
+from shots.kernels.simd import entry_key, prefetch_row, slab4
 from shots.kernels.triangle import intersect_triangle, ray_shear
 
 assert WIDTH == 4  # the slab tests below are written out for four children
 
-# Stack pairs per ray: at most 3 per tree level, and the build bounds the depth by
+# Stack entries per ray: at most 3 per tree level, and the build bounds the depth by
 # SAH_MAX_DEPTH + log2(triangles) + 1 <= 92 (bvh_build), so 3·92 + 3 fit.
 STACK_SIZE = 320
 CHUNK = 1024  # rays per parallel work item
 LANES = 16  # rays in flight per thread in the batch kernels
-LANE_STACK = 2 * STACK_SIZE  # stack entries per lane
+LANE_STACK = STACK_SIZE  # stack entries per lane
 # A chunk is coherent when most consecutive rays turn by less than COHERENT_STEP radians (and move
 # their origin by less than COHERENT_STEP x the scene's size). Measured with bench/raycast.py's
 # cameras: one ray after another wins over LANES in flight at 512 px over 40 degrees (0.0014 rad
@@ -66,12 +68,13 @@ ROBUST = np.float32(1.0 + 2.0 * (3.0 * _EPS32) / (1.0 - 3.0 * _EPS32))
 INF32 = np.float32(np.inf)
 ROOT = 0
 NONE = -1  # "no node": the link of an empty child slot, which traversal never enters
+MISS_KEY = (0x7F800000 << 32)  # entry keys at or above this are misses (entry distance +inf)
 
 
 @njit(cache=True)
 def new_stack():
-    """Scratch for one thread's traversals: (2·STACK_SIZE,) float64 of (entry t, link) pairs."""
-    return np.empty(2 * STACK_SIZE, np.float64)
+    """Scratch for one thread's traversals: (STACK_SIZE,) int64 entry keys."""
+    return np.empty(STACK_SIZE, np.int64)
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -83,48 +86,55 @@ def ray_setup(dx, dy, dz):
 
 
 @njit(cache=True, inline="always")
-def sort2(ta, la, tb, lb):
-    """Order two (distance, link) pairs by distance, without a branch."""
-    swap = tb < ta
-    return (tb if swap else ta), (lb if swap else la), (ta if swap else tb), (la if swap else lb)
+def sort2(a, b):
+    """Order two entry keys, without a branch."""
+    return min(a, b), max(a, b)
+
+
+@njit(cache=True, inline="always")
+def key_link(key):
+    """The link held in the low 32 bits of an entry key."""
+    return ((key & 0xFFFFFFFF) ^ 0x80000000) - 0x80000000
 
 
 @njit(cache=True, inline="always")
 def visit_ordered(node_bounds, node_links, node, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
                   stack, sp):  # fmt: skip
     """Slab-test the four children of an inner node, sort them by entry distance (misses sort
-    last, at +inf), push the hit ones but the nearest onto ``stack`` far to near as (t, link)
-    pairs, and return (nearest hit child or NONE, new stack top)."""
+    last, at +inf), push the hit ones but the nearest onto ``stack`` far to near as entry keys,
+    and return (nearest hit child or NONE, new stack top)."""
     t0, t1, t2, t3 = slab4(node_bounds, node, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
                            ROBUST)  # fmt: skip
-    n_hit = int(t0 < INF32) + int(t1 < INF32) + int(t2 < INF32) + int(t3 < INF32)
-    if n_hit == 0:
-        return NONE, sp
-    l0, l1 = node_links[node, LINK_ROW, 0], node_links[node, LINK_ROW, 1]
-    l2, l3 = node_links[node, LINK_ROW, 2], node_links[node, LINK_ROW, 3]
+    k0 = entry_key(t0, node_links[node, LINK_ROW, 0])
+    k1 = entry_key(t1, node_links[node, LINK_ROW, 1])
+    k2 = entry_key(t2, node_links[node, LINK_ROW, 2])
+    k3 = entry_key(t3, node_links[node, LINK_ROW, 3])
     # Sorting network for four elements.
-    t0, l0, t1, l1 = sort2(t0, l0, t1, l1)
-    t2, l2, t3, l3 = sort2(t2, l2, t3, l3)
-    t0, l0, t2, l2 = sort2(t0, l0, t2, l2)
-    t1, l1, t3, l3 = sort2(t1, l1, t3, l3)
-    t1, l1, t2, l2 = sort2(t1, l1, t2, l2)
-    stack[sp], stack[sp + 1] = t3, l3
-    sp += 2 * int(n_hit > 3)
-    stack[sp], stack[sp + 1] = t2, l2
-    sp += 2 * int(n_hit > 2)
-    stack[sp], stack[sp + 1] = t1, l1
-    sp += 2 * int(n_hit > 1)
-    return l0, sp
+    k0, k1 = sort2(k0, k1)
+    k2, k3 = sort2(k2, k3)
+    k0, k2 = sort2(k0, k2)
+    k1, k3 = sort2(k1, k3)
+    k1, k2 = sort2(k1, k2)
+    if k0 >= MISS_KEY:
+        return NONE, sp
+    stack[sp] = k3
+    sp += int(k3 < MISS_KEY)
+    stack[sp] = k2
+    sp += int(k2 < MISS_KEY)
+    stack[sp] = k1
+    sp += int(k1 < MISS_KEY)
+    return key_link(k0), sp
 
 
 @njit(cache=True, inline="always")
 def pop_ordered(stack, bottom, sp, t_hi):
-    """Pop the next (t, link) entry above ``bottom`` whose entry distance is still <= t_hi;
-    returns (link or NONE, new stack top)."""
+    """Pop the next entry above ``bottom`` whose entry distance is still <= t_hi; returns
+    (link or NONE, new stack top)."""
+    limit = entry_key(t_hi, NONE)  # the largest key with distance t_hi
     while sp > bottom:
-        sp -= 2
-        if stack[sp] <= t_hi:
-            return int(stack[sp + 1]), sp
+        sp -= 1
+        if stack[sp] <= limit:
+            return key_link(stack[sp]), sp
     return NONE, sp
 
 
@@ -194,6 +204,15 @@ def closest_hit_one(
     node_bounds, node_links, tri_verts, tri_ids, ox, oy, oz, dx, dy, dz, t_min, t_max, stack
 ):
     """Nearest hit along one ray; see the module docstring for arguments and returns."""
+    return trace_closest(node_bounds, node_links, tri_verts, tri_ids, ox, oy, oz, dx, dy, dz,
+                         t_min, t_max, stack)  # fmt: skip
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def trace_closest(
+    node_bounds, node_links, tri_verts, tri_ids, ox, oy, oz, dx, dy, dz, t_min, t_max, stack
+):
+    """closest_hit_one, inlined where it runs in a loop over rays."""
     fx, fy, fz, ix, iy, iz, nx, ny, nz, kx, ky, kz, okx, oky, okz, sx, sy, sz = prepare_ray(
         ox, oy, oz, dx, dy, dz
     )
@@ -233,7 +252,7 @@ def any_hit_one(node_bounds, node_links, tri_verts, ox, oy, oz, dx, dy, dz, t_mi
     sp = 1
     while sp > 0:
         sp -= 1
-        link = int(stack[sp])
+        link = stack[sp]
         if link >= 0:
             sp = visit_any(node_bounds, node_links, link, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo,
                            t_hi, stack, sp)  # fmt: skip
@@ -285,7 +304,7 @@ def start_lane(lane, i, origins, directions, t_min, t_max, fs, ds, ls):
 def closest_hits_range(node_bounds, node_links, tri_verts, tri_ids, origins, directions, t_min,
                        t_max, first, last, t_out, tri_out, u_out, v_out):  # fmt: skip
     """Closest hits of rays first..last-1, LANES at a time (see above)."""
-    stack = np.empty(LANES * LANE_STACK, np.float64)
+    stack = np.empty(LANES * LANE_STACK, np.int64)
     fs = np.empty((LANES, 8), np.float32)
     ds = np.empty((LANES, 11), np.float64)
     ls = np.empty((LANES, 10), np.int64)
@@ -336,7 +355,7 @@ def closest_hits_range(node_bounds, node_links, tri_verts, tri_ids, origins, dir
                 link = NONE
             ls[lane, I_LINK], ls[lane, I_SP] = link, sp
             if link == NONE and sp > lane * LANE_STACK:
-                link = int(stack[sp - 1])  # what the next step will probably pop
+                link = key_link(stack[sp - 1])  # what the next step will probably pop
             prefetch_link(node_bounds, tri_verts, link)
 
 
@@ -344,7 +363,7 @@ def closest_hits_range(node_bounds, node_links, tri_verts, tri_ids, origins, dir
 def any_hits_range(node_bounds, node_links, tri_verts, origins, directions, t_min, t_max, first,
                    last, out):  # fmt: skip
     """Occlusion of rays first..last-1, LANES at a time (see above)."""
-    stack = np.empty(LANES * LANE_STACK, np.float64)
+    stack = np.empty(LANES * LANE_STACK, np.int64)
     fs = np.empty((LANES, 8), np.float32)
     ds = np.empty((LANES, 11), np.float64)
     ls = np.empty((LANES, 10), np.int64)
@@ -365,7 +384,7 @@ def any_hits_range(node_bounds, node_links, tri_verts, origins, directions, t_mi
                 ls[lane, I_LINK] = NONE
             else:
                 sp -= 1
-                link = int(stack[sp])
+                link = stack[sp]
             occluded = False
             if link >= 0:
                 sp = visit_any(node_bounds, node_links, link, ls[lane, I_NX], ls[lane, I_NY],
@@ -389,7 +408,7 @@ def any_hits_range(node_bounds, node_links, tri_verts, origins, directions, t_mi
                     active -= 1
                 continue
             ls[lane, I_SP] = sp
-            prefetch_link(node_bounds, tri_verts, int(stack[sp - 1]))
+            prefetch_link(node_bounds, tri_verts, stack[sp - 1])
 
 
 @njit(cache=True, error_model="numpy")
@@ -435,10 +454,22 @@ def closest_hits_in_turn(node_bounds, node_links, tri_verts, tri_ids, origins, d
     stack = new_stack()
     for i in range(first, last):
         o, d = origins[i], directions[i]
-        t_out[i], tri_out[i], u_out[i], v_out[i] = closest_hit_one(
+        t_out[i], tri_out[i], u_out[i], v_out[i] = trace_closest(
             node_bounds, node_links, tri_verts, tri_ids, o[0], o[1], o[2], d[0], d[1], d[2],
             t_min[i], t_max[i], stack,
         )  # fmt: skip
+
+
+@njit(cache=True)
+def spread_stride(n_chunks):
+    """A step coprime with ``n_chunks`` near n_chunks / golden ratio. The parallel loops take
+    chunk (c · step) mod n_chunks at iteration c: the threads split the iterations into
+    contiguous blocks, and this deals each block chunks from all over the batch, so a thread does
+    not get all the busy rays of a camera image (its lower half, say) while another idles."""
+    step = max(1, int(round(n_chunks * 0.6180339887)))
+    while np.gcd(step, n_chunks) != 1:
+        step += 1
+    return step
 
 
 @njit(cache=True, parallel=True, error_model="numpy")
@@ -453,7 +484,10 @@ def closest_hits(node_bounds, node_links, tri_verts, tri_ids, origins, direction
     u_out = np.empty(r, np.float32)
     v_out = np.empty(r, np.float32)
     scale = coherence_scale(node_bounds, tri_verts)
-    for chunk in prange((r + CHUNK - 1) // CHUNK):
+    n_chunks = (r + CHUNK - 1) // CHUNK
+    step = spread_stride(n_chunks)
+    for c in prange(n_chunks):
+        chunk = (c * step) % n_chunks
         first, last = chunk * CHUNK, min(r, (chunk + 1) * CHUNK)
         if is_coherent(origins, directions, first, last, scale):
             closest_hits_in_turn(node_bounds, node_links, tri_verts, tri_ids, origins, directions,
@@ -472,7 +506,10 @@ def any_hits(node_bounds, node_links, tri_verts, origins, directions, t_min, t_m
     out = np.empty(r, np.bool_)
     # No in-turn path here: measured on 512 px camera rays (chair, grid 100k), tracing them in turn
     # was slower than the lanes (0.90-0.92x).
-    for chunk in prange((r + CHUNK - 1) // CHUNK):
+    n_chunks = (r + CHUNK - 1) // CHUNK
+    step = spread_stride(n_chunks)
+    for c in prange(n_chunks):
+        chunk = (c * step) % n_chunks
         any_hits_range(node_bounds, node_links, tri_verts, origins, directions, t_min, t_max,
                        chunk * CHUNK, min(r, (chunk + 1) * CHUNK), out)  # fmt: skip
     return out
