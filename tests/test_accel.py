@@ -23,8 +23,9 @@ from shots.accel import (
     intersect_closest,
     offset_origins,
     sah_cost,
+    traversal_bytes,
 )
-from shots.kernels import bvh_build, traverse
+from shots.kernels import bvh_build, simd, traverse
 from shots.kernels.bvh_build import LINK_ROW, MAX_LEAF
 from shots.kernels.traverse import any_hit_one, closest_hit_one, new_stack
 
@@ -377,6 +378,16 @@ def test_sah_constants_shape_the_tree():
     assert sah_cost(cheap) < 0.01 * len(triangles)
 
 
+def test_traversal_data_stays_within_64_bytes_per_triangle():
+    # The memory budget (#4), on the mesh that needs the most nodes per triangle: a finely
+    # tessellated sphere of equal triangles. 36 bytes are the vertices and 4 the triangle ids, so
+    # the default SAH constants must keep the node records under 24 bytes per triangle.
+    positions, triangles = icosphere(5)
+    bvh = build_bvh(positions, triangles)
+    assert traversal_bytes(bvh) <= 64 * len(triangles)
+    assert bvh.tri_verts.nbytes + bvh.tri_ids.nbytes == 40 * len(triangles)
+
+
 def test_child_boxes_contain_their_triangles():
     positions, triangles = MESHES["soup"]
     bvh = build_bvh(positions, triangles, max_leaf=4)
@@ -438,6 +449,29 @@ def _trace_one_by_one(node_bounds, node_links, tri_verts, tri_ids, origins, dire
         occluded[i] = any_hit_one(node_bounds, node_links, tri_verts, o[0], o[1], o[2], d[0], d[1],
                                   d[2], np.float32(0.0), t_max[i], stack)  # fmt: skip
     return t_out, k_out, u_out, v_out, occluded
+
+
+@numba.njit
+def _entry_keys(distances, links):
+    out = np.empty(len(distances), np.int64)
+    for i in range(len(distances)):
+        out[i] = simd.entry_key(distances[i], links[i])
+    return out
+
+
+def test_entry_keys_sort_like_their_distances_and_keep_the_link():
+    # IEEE 754-2008 §5.10 (totalOrder): sign-magnitude floats order as integers once negative
+    # values are mirrored; -0 sorts just below +0. Traversal sorts children by these keys.
+    distances = np.array([-np.inf, -3.5, -1e-40, -0.0, 0.0, 1e-45, 1e-3, 1.0, 1.0000001, 7e37,
+                          np.inf], np.float32)  # fmt: skip
+    links = np.array([5, -1, 0, 2**31 - 1, -(2**31), 7, -9, 3, 3, 11, -1], np.int32)
+    keys = _entry_keys(distances, links)
+    assert np.all(np.diff(keys) > 0)
+    low = (keys & 0xFFFFFFFF).astype(np.uint32).view(np.int32)
+    assert np.array_equal(low, links)
+    # Equal distances order by link bits (unsigned), so a tie never depends on the visit order.
+    same = _entry_keys(np.ones(2, np.float32), np.array([4, -1], np.int32))
+    assert same[0] < same[1]
 
 
 def test_batches_equal_single_ray_functions():

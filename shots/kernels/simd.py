@@ -45,6 +45,33 @@ def prefetch_row(typingctx, arr, i):
     return sig, codegen
 
 
+def _slab_entries(context, builder, signature, args):
+    """The <4 x float> entry distances of ``slab4``'s arguments, and the node record's address."""
+    bounds_val, node_val, nx_val, ny_val, nz_val = args[:5]
+    ray = [_splat(builder, a) for a in args[5:14]]
+    o = ray[0:3]
+    inv = ray[3:6]
+    t_in, t_out, rob = ray[6], ray[7], ray[8]
+    ary = context.make_array(signature.args[0])(context, builder, value=bounds_val)
+    node_stride, row_stride = cgutils.unpack_tuple(builder, ary.strides)[:2]
+    node_ptr = builder.gep(builder.bitcast(ary.data, ir.IntType(8).as_pointer()),
+                           [builder.mul(_i64(builder, node_val), node_stride)])  # fmt: skip
+
+    def row(r):
+        ptr = builder.gep(node_ptr, [builder.mul(_i64(builder, r), row_stride)])
+        return builder.load(builder.bitcast(ptr, _F4.as_pointer()), align=4)  # any float32 array
+
+    for axis, near in enumerate((nx_val, ny_val, nz_val)):
+        far = builder.xor(near, near.type(1))
+        lo = builder.fmul(builder.fsub(row(near), o[axis]), inv[axis])
+        hi = builder.fmul(builder.fmul(builder.fsub(row(far), o[axis]), inv[axis]), rob)
+        t_in = builder.select(builder.fcmp_ordered(">", lo, t_in), lo, t_in)
+        t_out = builder.select(builder.fcmp_ordered("<", hi, t_out), hi, t_out)
+    inf = ir.Constant(_F4, [float("inf")] * 4)
+    entry = builder.select(builder.fcmp_ordered("<=", t_in, t_out), t_in, inf)
+    return entry, row
+
+
 @intrinsic
 def slab4(typingctx, bounds, node, nx, ny, nz, ox, oy, oz, ix, iy, iz, t_lo, t_hi, robust):
     """Entry distances of a ray into the four child boxes of ``node``; +inf where it misses.
@@ -64,30 +91,39 @@ def slab4(typingctx, bounds, node, nx, ny, nz, ox, oy, oz, ix, iy, iz, t_lo, t_h
                                  robust)  # fmt: skip
 
     def codegen(context, builder, signature, args):
-        bounds_val, node_val, nx_val, ny_val, nz_val = args[:5]
-        ray = [_splat(builder, a) for a in args[5:]]
-        o = ray[0:3]
-        inv = ray[3:6]
-        t_in, t_out, rob = ray[6], ray[7], ray[8]
-        ary = context.make_array(signature.args[0])(context, builder, value=bounds_val)
-        node_stride, row_stride = cgutils.unpack_tuple(builder, ary.strides)[:2]
-        node_ptr = builder.gep(builder.bitcast(ary.data, ir.IntType(8).as_pointer()),
-                               [builder.mul(_i64(builder, node_val), node_stride)])  # fmt: skip
-        vec_ptr = _F4.as_pointer()
-
-        def row(r):
-            ptr = builder.gep(node_ptr, [builder.mul(_i64(builder, r), row_stride)])
-            return builder.load(builder.bitcast(ptr, vec_ptr), align=4)  # any float32 array
-
-        for axis, near in enumerate((nx_val, ny_val, nz_val)):
-            far = builder.xor(near, near.type(1))
-            lo = builder.fmul(builder.fsub(row(near), o[axis]), inv[axis])
-            hi = builder.fmul(builder.fmul(builder.fsub(row(far), o[axis]), inv[axis]), rob)
-            t_in = builder.select(builder.fcmp_ordered(">", lo, t_in), lo, t_in)
-            t_out = builder.select(builder.fcmp_ordered("<", hi, t_out), hi, t_out)
-        inf = ir.Constant(_F4, [float("inf")] * 4)
-        entry = builder.select(builder.fcmp_ordered("<=", t_in, t_out), t_in, inf)
+        entry, _ = _slab_entries(context, builder, signature, args)
         lanes = [builder.extract_element(entry, ir.IntType(32)(j)) for j in range(4)]
+        return cgutils.pack_array(builder, lanes)
+
+    return sig, codegen
+
+
+def _order_bits(builder, bits):
+    """float32 bits (as i32 or <n x i32>) -> signed integers in the floats' order: negative
+    values mirrored, so that integer compares sort like the floats (and -0.0 < 0.0)."""
+    vector = isinstance(bits.type, ir.VectorType)
+
+    def const(value):
+        return ir.Constant(bits.type, [value] * bits.type.count if vector else value)
+
+    return builder.xor(bits, builder.and_(builder.ashr(bits, const(31)), const(0x7FFFFFFF)))
+
+
+@intrinsic
+def child_keys(typingctx, bounds, node, nx, ny, nz, ox, oy, oz, ix, iy, iz, t_lo, t_hi, robust,
+               link_row):  # fmt: skip
+    """``slab4``, returned as the four children's entry keys (see ``entry_key``), the links read
+    from row ``link_row`` of the node record (int32 bits)."""
+    sig = types.UniTuple(types.int64, 4)(bounds, node, nx, ny, nz, ox, oy, oz, ix, iy, iz, t_lo,
+                                         t_hi, robust, link_row)  # fmt: skip
+
+    def codegen(context, builder, signature, args):
+        entry, row = _slab_entries(context, builder, signature, args[:14])
+        i32x4, i64x4 = ir.VectorType(ir.IntType(32), 4), ir.VectorType(ir.IntType(64), 4)
+        ordered = builder.sext(_order_bits(builder, builder.bitcast(entry, i32x4)), i64x4)
+        links = builder.zext(builder.bitcast(row(args[14]), i32x4), i64x4)
+        keys = builder.or_(builder.shl(ordered, ir.Constant(i64x4, [32] * 4)), links)
+        lanes = [builder.extract_element(keys, ir.IntType(32)(j)) for j in range(4)]
         return cgutils.pack_array(builder, lanes)
 
     return sig, codegen
@@ -96,15 +132,13 @@ def slab4(typingctx, bounds, node, nx, ny, nz, ox, oy, oz, ix, iy, iz, t_lo, t_h
 @intrinsic
 def entry_key(typingctx, t, link):
     """One int64 that orders (entry distance, link) pairs as the distance does: the float32's
-    bits turned into an order-preserving signed integer (negative values mirrored) in the upper
-    half, the link's 32 bits in the lower. Integer min/max sort such keys without a branch."""
+    bits turned into an order-preserving signed integer in the upper half, the link's 32 bits in
+    the lower. Integer min/max sort such keys without a branch."""
     sig = types.int64(t, link)
 
     def codegen(context, builder, signature, args):
         i32, i64 = ir.IntType(32), ir.IntType(64)
-        bits = builder.bitcast(args[0], i32)
-        mirror = builder.and_(builder.ashr(bits, i32(31)), i32(0x7FFFFFFF))
-        ordered = builder.sext(builder.xor(bits, mirror), i64)
+        ordered = builder.sext(_order_bits(builder, builder.bitcast(args[0], i32)), i64)
         low = builder.zext(builder.trunc(args[1], i32), i64)
         return builder.or_(builder.shl(ordered, i64(32)), low)
 

@@ -41,7 +41,7 @@ import numpy as np
 from numba import njit, prange
 
 from shots.kernels.bvh_build import LEAF_BITS, LINK_ROW, MAX_LEAF, WIDTH
-from shots.kernels.simd import entry_key, prefetch_row, slab4
+from shots.kernels.simd import child_keys, entry_key, prefetch_row, slab4
 from shots.kernels.triangle import intersect_triangle, ray_shear
 
 assert WIDTH == 4  # the slab tests below are written out for four children
@@ -68,7 +68,7 @@ ROBUST = np.float32(1.0 + 2.0 * (3.0 * _EPS32) / (1.0 - 3.0 * _EPS32))
 INF32 = np.float32(np.inf)
 ROOT = 0
 NONE = -1  # "no node": the link of an empty child slot, which traversal never enters
-MISS_KEY = (0x7F800000 << 32)  # entry keys at or above this are misses (entry distance +inf)
+MISS_KEY = 0x7F800000 << 32  # entry keys at or above this are misses (entry distance +inf)
 
 
 @njit(cache=True)
@@ -98,17 +98,12 @@ def key_link(key):
 
 
 @njit(cache=True, inline="always")
-def visit_ordered(node_bounds, node_links, node, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
-                  stack, sp):  # fmt: skip
+def visit_ordered(node_bounds, node, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi, stack, sp):
     """Slab-test the four children of an inner node, sort them by entry distance (misses sort
     last, at +inf), push the hit ones but the nearest onto ``stack`` far to near as entry keys,
     and return (nearest hit child or NONE, new stack top)."""
-    t0, t1, t2, t3 = slab4(node_bounds, node, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo, t_hi,
-                           ROBUST)  # fmt: skip
-    k0 = entry_key(t0, node_links[node, LINK_ROW, 0])
-    k1 = entry_key(t1, node_links[node, LINK_ROW, 1])
-    k2 = entry_key(t2, node_links[node, LINK_ROW, 2])
-    k3 = entry_key(t3, node_links[node, LINK_ROW, 3])
+    k0, k1, k2, k3 = child_keys(node_bounds, node, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo,
+                                t_hi, ROBUST, LINK_ROW)  # fmt: skip
     # Sorting network for four elements.
     k0, k1 = sort2(k0, k1)
     k2, k3 = sort2(k2, k3)
@@ -226,8 +221,8 @@ def trace_closest(
             if link == NONE:
                 break
         elif link >= 0:
-            link, sp = visit_ordered(node_bounds, node_links, link, nx, ny, nz, fx, fy, fz, ix, iy,
-                                     iz, t_lo, t_hi, stack, sp)  # fmt: skip
+            link, sp = visit_ordered(node_bounds, link, nx, ny, nz, fx, fy, fz, ix, iy, iz, t_lo,
+                                     t_hi, stack, sp)  # fmt: skip
         else:
             t_best, u_best, v_best, k_best = visit_leaf_closest(
                 tri_verts, link, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min, t_best, u_best,
@@ -339,7 +334,7 @@ def closest_hits_range(node_bounds, node_links, tri_verts, tri_ids, origins, dir
                     continue
             if link >= 0:  # ROOT or an inner node
                 link, sp = visit_ordered(
-                    node_bounds, node_links, link, ls[lane, I_NX], ls[lane, I_NY], ls[lane, I_NZ],
+                    node_bounds, link, ls[lane, I_NX], ls[lane, I_NY], ls[lane, I_NZ],
                     fs[lane, F_OX], fs[lane, F_OY], fs[lane, F_OZ], fs[lane, F_IX],
                     fs[lane, F_IY], fs[lane, F_IZ], fs[lane, F_TLO], t_hi, stack, sp,
                 )  # fmt: skip
