@@ -486,6 +486,19 @@ def test_batches_equal_single_ray_functions():
     for a, b in zip(batch, one, strict=True):
         assert a.tobytes() == b.tobytes()
     assert intersect_any(bvh, origins, directions, 0.0, t_max).tobytes() == occluded_one.tobytes()
+    # So small a tree sends even random rays through closest_hits one after another; the lanes
+    # must give the same answers.
+    assert traverse.fits_in_cache(bvh.node_bounds, bvh.tri_verts)
+    r = len(origins)
+    lanes = [np.empty(r, np.float32), np.empty(r, np.int32), np.empty(r, np.float32),
+             np.empty(r, np.float32)]  # fmt: skip
+    t0 = np.zeros(r, np.float32)
+    traverse.closest_hits_range(*bvh, origins, directions, t0, np.full(r, np.inf, np.float32), 0,
+                                r, *lanes)  # fmt: skip
+    for a, b in zip(lanes, batch, strict=True):
+        assert a.tobytes() == b.tobytes()
+    big = np.empty((traverse.IN_CACHE_BYTES // 36 + 1, 9), np.float32)  # 36 bytes a triangle
+    assert not traverse.fits_in_cache(bvh.node_bounds, big)
 
 
 def pinhole_rays(positions, size, fov_deg=40.0):
@@ -504,7 +517,8 @@ def pinhole_rays(positions, size, fov_deg=40.0):
 
 def test_coherent_chunks_are_traced_in_turn_with_the_same_answers():
     # Chunks of camera rays go through the ray-after-ray path of closest_hits, random rays through
-    # the lanes; both must give every ray the single-ray functions' answer, bit for bit.
+    # the lanes unless the tree fits in a cache (this one does: the lanes are run directly below);
+    # both must give every ray the single-ray functions' answer, bit for bit.
     positions, triangles = MESHES["furniture"]
     bvh = build_bvh(positions, triangles)
     scale = traverse.coherence_scale(bvh.node_bounds, bvh.tri_verts)
