@@ -32,7 +32,7 @@ BORROWED_FIRST = (31, 119, 180)
 
 
 def wcag_contrast_on_white(rgb) -> float:
-    """WCAG 2.x contrast ratio (L1 + 0.05) / (L2 + 0.05) against white (L1 = 1), where the
+    """WCAG 2.x contrast ratio (lighter + 0.05) / (darker + 0.05) against white (1), where the
     relative luminance is 0.2126 R + 0.7152 G + 0.0722 B of the linearised sRGB channels
     (W3C WCAG 2.1, definitions "contrast ratio" and "relative luminance"; IEC 61966-2-1 decode)."""
     c = np.asarray(rgb, np.float64) / 255.0
