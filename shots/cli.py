@@ -75,7 +75,8 @@ def render(
     preset: PresetOpt = "still",
     scene: SceneOpt = None,
     variant: Annotated[str | None, typer.Option(
-        "--variant", metavar="VARIANT", help="KHR_materials_variants name to render.")] = None,
+        "--variant", metavar="VARIANT",
+        help="KHR_materials_variants name to render; it joins the file name.")] = None,
 ) -> None:
     """Render one model with a preset's shots (default: one three-quarter still)."""
     from shots.pipeline import render_model

@@ -50,7 +50,7 @@ def batch(
         "--bits", metavar="8|16", help="PNG bit depth: 8 or 16.")] = 8,
     exr: Annotated[bool, typer.Option(
         "--exr", metavar=FLAG,
-        help="Also write linear premultiplied EXR files (needs OpenEXR).")] = False,
+        help="Also write linear premultiplied EXR files beside the PNGs.")] = False,
     animations: Annotated[str, typer.Option(
         "--animations", metavar="FORMATS",
         help="Formats for moving shots, comma-separated (gif,webp,mp4), "
