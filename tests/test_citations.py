@@ -1,8 +1,8 @@
 """Comments and docstrings cite sources a reader can open, never our working notes.
 
 A citation names a standard, a specification section, an extension README or a paper. Our notes
-(their file, their item ids such as "M6" or "R4", the brief they answered) are not published, so
-a reference to them leaves the reader with nothing to check.
+(their file, their item numbers, the task text they answered) are not published, so a reference
+to them leaves the reader with nothing to check.
 """
 
 import io
