@@ -20,6 +20,7 @@ from rich.table import Table
 from shots.batch.cli_command import batch
 from shots.cli_help import FLAG, ShotsCommand, ShotsGroup
 from shots.errors import ShotsError
+from shots.text import literal
 
 app = typer.Typer(
     cls=ShotsGroup,
@@ -37,9 +38,11 @@ def fail(message: str, code: int = 2) -> None:
     raise typer.Exit(code)
 
 
-def warn(message: str) -> None:
-    """Print one warning line on stderr, unwrapped (a hint must stay greppable as one line)."""
-    err.print(f"[yellow]warning:[/] {escape(message)}", highlight=False, soft_wrap=True)
+def warn(message: str, kind: str = "warning") -> None:
+    """Print one warning line on stderr, unwrapped (a hint must stay greppable as one line);
+    ``kind`` labels it (``"ignored"`` for what the model asks for and is not rendered)."""
+    err.print(f"[yellow]{kind}:[/] {escape(literal(message))}", highlight=False,
+              soft_wrap=True)
 
 
 def parse_size(text: str | None) -> tuple[int, int] | None:
@@ -90,7 +93,7 @@ def render(
             scene_choice=parse_scene(scene),
             variant=variant,
             on_frame=lambda r: out.print(f"wrote {r.path}", highlight=False),
-            on_warning=lambda text: warn(f"{model}: {text}"),
+            on_warning=lambda text: warn(f"{model}: {text}", getattr(text, "kind", "warning")),
         )
     except ShotsError as exc:
         fail(str(exc))
@@ -130,7 +133,7 @@ def plan(
         sys.stdout.write(json.dumps(rows, indent=1) + "\n")
         return
     for warning in loaded.warnings:
-        err.print(f"warning: {escape(warning)}", highlight=False)
+        warn(warning, getattr(warning, "kind", "warning"))
     table = Table(title=f"{preset} × {model.name}: {len(rows)} frames")
     for column in ("shot", "frame", "view", "eye", "target", "up", "lens", "size"):
         table.add_column(column)

@@ -188,6 +188,9 @@ class Scene:
     variants : KHR_materials_variants names, and for each the (n,) int32 material per triangle.
     cameras, lights : the file's own cameras and punctual lights.
     source : the file the scene came from, for messages.
+    warnings : the model's notes, each a ``shots.gltf.notes.Note`` (a str with a ``kind``):
+        repairs and doubts ("warning"), and what the file asks for that is not rendered
+        ("ignored"); plain strings count as warnings.
     """
 
     positions: np.ndarray

@@ -22,6 +22,8 @@ from rich.progress import (
     TimeRemainingColumn,
 )
 
+from shots.text import literal
+
 
 class Reporter:
     """Progress bars (models, frames with ETA) and the optional JSON-lines log.
@@ -120,6 +122,10 @@ def print_summary(summary, console: Console) -> None:
     table.add_row("total", "", str(summary.frames_rendered), str(summary.frames_skipped),
                   str(summary.frames_failed), f"{len(summary.failures)} failed", end_section=True)
     console.print(table)
+    for model in summary.models:  # what each file asks for that is not rendered, and repairs
+        for note in model.notes:
+            console.print(f"[yellow]note:[/] {escape(model.listed_as)}: {escape(literal(note))}",
+                          highlight=False, soft_wrap=True)
     for note in summary.notes:
         console.print(escape(note), highlight=False, soft_wrap=True)
     for image, reasons in summary.flagged:

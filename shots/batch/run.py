@@ -53,6 +53,7 @@ class ModelOutcome:
     skipped: int
     failed: int
     error: str | None
+    notes: list[str] = field(default_factory=list)  # the model's loader notes, sorted
 
 
 @dataclass
@@ -778,4 +779,5 @@ class Batch:
     def _outcome(self, state: ModelState) -> ModelOutcome:
         return ModelOutcome(model=state.name, listed_as=state.entry.listed_as,
                             variants=state.variants, rendered=state.rendered,
-                            skipped=state.skipped, failed=state.failed, error=state.error)
+                            skipped=state.skipped, failed=state.failed, error=state.error,
+                            notes=sorted(state.warnings))

@@ -55,9 +55,9 @@ def scene_roots(doc: Document, choice: int | str | None) -> list[int]:
     elif gltf.scene is not None:
         chosen = checks.index(gltf.scene, scenes, src, "scene", "scenes")
     else:
-        chosen = 0
-        if len(scenes) > 1:
-            doc.warn("no default scene: rendering scenes[0]")
+        chosen = 0  # a note either way: the spec leaves the choice to the client
+        doc.warn("no default scene: rendering scenes[0]" if len(scenes) > 1
+                 else "no `scene` property: scene 0 used")
     nodes = checks.array(scenes[chosen].nodes, src, f"scenes[{chosen}].nodes")
     return [checks.index(n, gltf.nodes, src, f"scenes[{chosen}].nodes[{k}]", "nodes")
             for k, n in enumerate(nodes)]
@@ -165,6 +165,7 @@ class GeometryBuilder:
         self.total_triangles = 0
         self.dropped_non_finite = 0
         self.dropped_zero_area = 0
+        self.skipped_modes: dict[str, int] = {}
         self._local_triangles: dict[tuple, tuple] = {}
         self._bounds_checked: set[int] = set()
         self._decoded: set[tuple[int, int]] = set()
@@ -197,8 +198,9 @@ class GeometryBuilder:
                 raise doc.error(where + ".extensions.KHR_draco_mesh_compression",
                                 "Draco-compressed geometry needs the DracoPy package")
         mode = checks.integer(prim.mode, src, where + ".mode", high=6, default=TRIANGLES)
-        if mode in MODE_NAMES:
-            doc.warn(f"{where}: {MODE_NAMES[mode]} primitive skipped (no surface to render)")
+        if mode in MODE_NAMES:  # counted, named once per model in warn_dropped
+            name = MODE_NAMES[mode]
+            self.skipped_modes[name] = self.skipped_modes.get(name, 0) + 1
             return
         attributes = _attributes(prim, doc, where)
         if "POSITION" not in attributes:
@@ -286,6 +288,9 @@ class GeometryBuilder:
         return local, drawn
 
     def warn_dropped(self) -> None:
+        if self.skipped_modes:
+            counts = ", ".join(f"{n} {mode}" for mode, n in sorted(self.skipped_modes.items()))
+            self.doc.ignore(f"primitives without a surface not rendered: {counts}")
         if self.dropped_non_finite:
             self.doc.warn(f"{self.dropped_non_finite} triangles with NaN or infinite vertices "
                           "dropped")
