@@ -168,6 +168,7 @@ class GeometryBuilder:
         self.skipped_modes: dict[str, int] = {}
         self._local_triangles: dict[tuple, tuple] = {}
         self._bounds_checked: set[int] = set()
+        self._alignment_checked: set[int] = set()
         self._decoded: set[tuple[int, int]] = set()
 
     def add_scene(self, roots: list[int]) -> list[tuple[int, np.ndarray]]:
@@ -212,7 +213,8 @@ class GeometryBuilder:
         n_vertices = positions.shape[0]
         if position_index not in self._bounds_checked:
             self._bounds_checked.add(position_index)
-            self._check_declared_bounds(position_index, positions)
+            self._check_declared_bounds(position_index)
+        self._check_alignment(position_index, where + ".attributes.POSITION")
         local, drawn = self._triangles(prim, mode, positions, position_index, where)
         self.total_triangles += drawn
         if self.total_triangles > self.max_triangles:
@@ -227,6 +229,7 @@ class GeometryBuilder:
             if name not in attributes:
                 return None
             data = reader.floats(attributes[name], f"{where}.attributes.{name}", types)
+            self._check_alignment(attributes[name], f"{where}.attributes.{name}")
             if data.shape[0] != n_vertices:
                 raise doc.error(f"{where}.attributes.{name}", f"count {data.shape[0]} differs "
                                                               f"from POSITION count {n_vertices}")
@@ -252,14 +255,29 @@ class GeometryBuilder:
                            self.needs_tangents(material))
         self.pieces.append(piece)
 
-    def _check_declared_bounds(self, i: int, positions: np.ndarray) -> None:
-        """Warn when POSITION's declared min/max disagree with its data (glTF 2.0 spec §Accessors:
-        POSITION must declare them)."""
+    def _check_alignment(self, i: int, where: str) -> None:
+        """Warn once per accessor about a vertex attribute off the 4-byte grid (glTF 2.0 spec
+        §3.6.2.2); it still loads (numpy reads unaligned data)."""
+        if i in self._alignment_checked:
+            return
+        self._alignment_checked.add(i)
+        reason = self.reader.vertex_misalignment(i)
+        if reason is not None:
+            self.doc.warn(f"accessors[{i}] ({where}): {reason}; vertex attributes must be "
+                          "4-byte aligned")
+
+    def _check_declared_bounds(self, i: int) -> None:
+        """Warn when POSITION's min/max are missing or disagree with its data (glTF 2.0 spec
+        §3.6.2.4: POSITION MUST declare them, in the accessor's own, unnormalized values)."""
         acc = self.doc.gltf.accessors[i]
+        if not acc.min or not acc.max:  # absent (pygltflib gives [] or None)
+            self.doc.warn(f"accessors[{i}]: POSITION has no min/max (required)")
+            return
         try:
             declared = np.array([acc.min, acc.max], np.float64).reshape(2, 3)
         except (TypeError, ValueError):
-            return  # absent or malformed: nothing to compare with
+            return  # malformed: nothing to compare with
+        positions = self.reader.raw(i)  # stored values: normalized ints stay integers
         # column by column: numpy's axis reductions over (v, 3) are slow
         actual = np.array([[positions[:, k].min() for k in range(3)],
                            [positions[:, k].max() for k in range(3)]], np.float64)

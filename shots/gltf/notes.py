@@ -70,16 +70,16 @@ def unused_features(doc: Document, nodes: list[tuple[int, np.ndarray]]) -> None:
 
 
 def _unused_samplers(doc: Document) -> None:
-    """A mipmap minFilter is read and checked, but minification uses the magnification filter."""
+    """A mipmap minFilter is read and checked, but minification uses the magnification filter;
+    one note names every such sampler."""
     gltf = doc.gltf
     used = {t.sampler for t in gltf.textures or [] if isinstance(t.sampler, int)}
-    for s in sorted(used):
-        if s >= len(gltf.samplers or []):
-            continue
-        name = MIPMAP_FILTERS.get(gltf.samplers[s].minFilter)
-        if name is not None:
-            doc.ignore(f"samplers[{s}].minFilter {name} not used: minification uses the "
-                       "magnification filter")
+    mipmapped = [f"samplers[{s}] {MIPMAP_FILTERS[gltf.samplers[s].minFilter]}"
+                 for s in sorted(used) if s < len(gltf.samplers or [])
+                 and gltf.samplers[s].minFilter in MIPMAP_FILTERS]
+    if mipmapped:
+        doc.ignore(f"mipmap minFilter not used (minification uses the magnification filter): "
+                   f"{', '.join(mipmapped)}")
 
 
 def _unused_texture_fields(doc: Document) -> None:
