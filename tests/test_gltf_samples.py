@@ -107,8 +107,8 @@ def test_sample_loads_with_consistent_arrays(name):
     np.testing.assert_allclose(np.linalg.norm(scene.normals[used], axis=1), 1.0, atol=1e-5)
 
 
-@pytest.mark.parametrize("name", sorted(MODELS))
-def test_triangle_count_matches_manifest(name):
+@pytest.mark.parametrize("name", sorted(n for n in MODELS if "triangles" in MODELS[n]))
+def test_triangle_count_matches_manifest(name):  # the newer entries carry no count
     # MANIFEST.json "triangles": n/3, strips and fans n-2, every node instance counted. We drop
     # zero-area triangles (by design, with a warning); count those independently with trimesh's
     # own (unprocessed) faces and vertices in the mesh's coordinates.

@@ -16,6 +16,7 @@ import pygltflib
 from shots.gltf import checks
 from shots.gltf.accessors import AccessorReader
 from shots.gltf.container import Document
+from shots.gltf.mikktspace import mikktspace_corners, split_vertices
 
 TRIANGLES, TRIANGLE_STRIP, TRIANGLE_FAN = 4, 5, 6
 MODE_NAMES = {0: "POINTS", 1: "LINES", 2: "LINE_LOOP", 3: "LINE_STRIP"}
@@ -373,8 +374,7 @@ def _add_shading_frame(piece: Piece, normals: np.ndarray | None, attribute: Call
         if tangents is not None:
             piece.tangents = _world_tangents(tangents, linear, det)
     if texcoord is not None and piece.tangents is None:  # a normal map needs a tangent frame
-        piece.tangents = generate_tangents(piece.positions, piece.normals, piece.triangles,
-                                           piece.uv[min(texcoord, 1)])
+        generate_tangents(piece, piece.uv[min(texcoord, 1)])
 
 
 def _has_fallback(doc: Document, prim) -> bool:
@@ -489,45 +489,20 @@ def _make_flat(piece: Piece) -> None:
     piece.tangents = None
 
 
-def generate_tangents(positions: np.ndarray, normals: np.ndarray, triangles: np.ndarray,
-                      uv: np.ndarray | None) -> np.ndarray:
-    """(v, 4) float32 tangents from UV derivatives, averaged per vertex (Lengyel's method).
-
-    T follows +u. glTF's v runs down the image, so the bitangent B = cross(N, T)·w must point
-    toward decreasing v (glTF 2.0 spec §Meshes, TANGENT; glTF-Sample-Models issue #174):
-    w = sign(dot(cross(N, T), -dP/dv)).
-    """
-    v = positions.shape[0]
-    out = np.zeros((v, 4), np.float32)
-    out[:, 3] = 1.0
-    if uv is None or triangles.shape[0] == 0:
-        out[:, :3] = _any_perpendicular(normals)
-        return out
-    p = positions.astype(np.float64)
-    t = uv.astype(np.float64)
-    i0, i1, i2 = triangles[:, 0], triangles[:, 1], triangles[:, 2]
-    e1, e2 = p[i1] - p[i0], p[i2] - p[i0]
-    d1, d2 = t[i1] - t[i0], t[i2] - t[i0]
-    det = d1[:, 0] * d2[:, 1] - d2[:, 0] * d1[:, 1]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        r = np.where(np.abs(det) > 1e-20, 1.0 / det, 0.0)[:, None]
-    dp_du = (e1 * d2[:, 1:2] - e2 * d1[:, 1:2]) * r
-    dp_dv = (e2 * d1[:, 0:1] - e1 * d2[:, 0:1]) * r
-    tan = np.zeros((v, 3))
-    bit = np.zeros((v, 3))
-    for corner in (i0, i1, i2):
-        for axis in range(3):
-            tan[:, axis] += np.bincount(corner, dp_du[:, axis], minlength=v)
-            bit[:, axis] += np.bincount(corner, dp_dv[:, axis], minlength=v)
-    n = normals.astype(np.float64)
-    tan -= n * np.einsum("ij,ij->i", n, tan)[:, None]  # Gram-Schmidt against N
-    unit = _unit(tan)
-    missing = ~unit.any(axis=1)
-    unit[missing] = _any_perpendicular(normals[missing])
-    out[:, :3] = unit
-    handed = np.einsum("ij,ij->i", np.cross(n, unit), -bit)
-    out[:, 3] = np.where(handed < 0, -1.0, 1.0)
-    return out
+def generate_tangents(piece: Piece, uv: np.ndarray | None) -> None:
+    """Give ``piece`` MikkTSpace tangents (``shots.gltf.mikktspace``), splitting the vertices
+    whose corners need different tangents (mirrored UV seams). Without UVs any tangent
+    perpendicular to the normal will do (w = +1)."""
+    if uv is None or piece.triangles.shape[0] == 0:
+        piece.tangents = np.ones((piece.positions.shape[0], 4), np.float32)
+        piece.tangents[:, :3] = _any_perpendicular(piece.normals)
+        return
+    corners = mikktspace_corners(piece.positions, piece.normals, piece.triangles, uv)
+    source, piece.triangles, piece.tangents = split_vertices(piece.triangles, corners)
+    piece.positions = np.take(piece.positions, source, axis=0)
+    piece.normals = np.take(piece.normals, source, axis=0)
+    piece.uv = [None if t is None else np.take(t, source, axis=0) for t in piece.uv]
+    piece.colors = None if piece.colors is None else np.take(piece.colors, source, axis=0)
 
 
 def _any_perpendicular(normals: np.ndarray) -> np.ndarray:
