@@ -3,9 +3,12 @@ Revisited"), which glTF 2.0 spec §3.7.2.1 asks clients to use when TANGENT is a
 
 from __future__ import annotations
 
+import json
+import struct
 from pathlib import Path
 
 import numpy as np
+import pytest
 from gltf_builder import GltfBuilder
 
 from shots.gltf import load_scene
@@ -80,3 +83,68 @@ def test_corner_angle_weighting():
     angle = np.degrees(np.arctan2(corners[0, 0, 1], corners[0, 0, 0]))
     assert abs(angle - np.degrees(np.arctan2(10.0, 90.0))) < 1e-6
     assert corners[0, 0, 3] == 1.0
+
+
+def without_tangents(name: str, folder: Path) -> Path:
+    """A copy of a sample GLB whose primitives lose TANGENT (the loader must generate them)."""
+    data = (SAMPLES / name).read_bytes()
+    length = struct.unpack_from("<I", data, 12)[0]
+    tree = json.loads(data[20 : 20 + length])
+    for mesh in tree["meshes"]:
+        for prim in mesh["primitives"]:
+            prim["attributes"].pop("TANGENT", None)
+    body = json.dumps(tree).encode()
+    body += b" " * (-len(body) % 4)
+    rest = data[20 + length :]
+    glb = struct.pack("<II", len(body), 0x4E4F534A) + body + rest
+    out = folder / name
+    out.write_bytes(struct.pack("<III", 0x46546C67, 2, 12 + len(glb)) + glb)
+    return out
+
+
+def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
+    edges = np.flatnonzero(np.diff(np.r_[0, mask.astype(int), 0]))
+    return [(a, b) for a, b in zip(edges[::2], edges[1::2], strict=True) if b - a > 4]
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", ["NormalTangentTest.glb", "NormalTangentMirrorTest.glb"])
+def test_normal_mapped_bumps_are_lit_from_the_lights_side(tmp_path, name):
+    # NormalTangentTest / NormalTangentMirrorTest (Khronos samples; the second with mirrored
+    # UVs): every square holds hemispheres drawn by a normal map. With generated tangents, a
+    # grazing light (20° elevation) from +x must brighten each bump's +x side as it would a real
+    # hemisphere: the difference D = I(light from +x) - I(light from -x) has a positive first
+    # moment along x about the bump's centre, in every square; likewise along y. A flipped
+    # tangent or bitangent (or a mirrored column blended across its seam) turns it negative.
+    from scenes import look, ortho_camera, render
+
+    from shots.look import Light
+
+    scene = load_scene(without_tangents(name, tmp_path))
+    camera = ortho_camera(size=192, half_height=1.25, eye=(0, -0.12, 5), target=(0, -0.12, 0))
+    c, s = np.cos(np.radians(20)), np.sin(np.radians(20))
+
+    def lit(direction):
+        image = render(scene, camera, look(Light(kind="directional", direction=direction,
+                                                 intensity=3.0), samples=4))
+        return image[..., :3].mean(axis=-1), image[..., 3]
+
+    plus_x, alpha = lit((-c, 0, -s))
+    minus_x, _ = lit((c, 0, -s))
+    plus_y, _ = lit((0, -c, -s))
+    minus_y, _ = lit((0, c, -s))
+    mask = alpha > 0.5
+    j, i = np.mgrid[0 : mask.shape[0], 0 : mask.shape[1]]
+    checked = 0
+    for difference, coordinate in ((plus_x - minus_x, i), (plus_y - minus_y, -j)):
+        for x0, x1 in _runs(mask.any(axis=0)):
+            for y0, y1 in _runs(mask.any(axis=1)):
+                cell = (slice(y0, y1), slice(x0, x1))
+                weight = np.abs(difference[cell])
+                if weight.sum() < 10.0:  # a square without a lit bump (labels, gaps)
+                    continue
+                centre = (weight * coordinate[cell]).sum() / weight.sum()
+                moment = (difference[cell] * (coordinate[cell] - centre)).sum() / weight.sum()
+                assert moment > -0.1, (x0, y0)
+                checked += 1
+    assert checked >= 30  # 15 squares and more, both directions
