@@ -19,8 +19,6 @@ if TYPE_CHECKING:
 
 WARNING, IGNORED = "warning", "ignored"
 
-# texture fields of supported extensions that no shading input reads (KHR extension READMEs)
-IGNORED_TEXTURE_FIELDS = {"KHR_materials_clearcoat": ("clearcoatNormalTexture",)}
 # sampler minFilter values other than the magnification filters (glTF 2.0 spec §Samplers)
 MIPMAP_FILTERS = {9984: "NEAREST_MIPMAP_NEAREST", 9985: "LINEAR_MIPMAP_NEAREST",
                   9986: "NEAREST_MIPMAP_LINEAR", 9987: "LINEAR_MIPMAP_LINEAR"}
@@ -49,8 +47,7 @@ def as_note(item) -> Note:
 def unused_features(doc: Document, nodes: list[tuple[int, np.ndarray]]) -> None:
     """Note, once per model, what the file holds that the renderer does not use: skins, morph
     targets and animations (glTF 2.0 spec §Skins, §Morph Targets, §Animations: the model is
-    drawn in its rest pose), mipmap minification filters (§Samplers) and texture fields of
-    supported extensions that no shading input reads."""
+    drawn in its rest pose), mipmap minification filters (§Samplers)."""
     gltf, src = doc.gltf, doc.source
     used_nodes = [gltf.nodes[i] for i, _ in nodes]
     meshes = {n.mesh for n in used_nodes if isinstance(n.mesh, int)}
@@ -66,7 +63,6 @@ def unused_features(doc: Document, nodes: list[tuple[int, np.ndarray]]) -> None:
     if animations:
         doc.ignore(f"{len(animations)} animation(s) not played: drawn in the rest pose")
     _unused_samplers(doc)
-    _unused_texture_fields(doc)
 
 
 def _unused_samplers(doc: Document) -> None:
@@ -80,16 +76,6 @@ def _unused_samplers(doc: Document) -> None:
     if mipmapped:
         doc.ignore(f"mipmap minFilter not used (minification uses the magnification filter): "
                    f"{', '.join(mipmapped)}")
-
-
-def _unused_texture_fields(doc: Document) -> None:
-    for i, mat in enumerate(doc.gltf.materials or []):
-        ext = mat.extensions if isinstance(mat.extensions, dict) else {}
-        for name, fields in IGNORED_TEXTURE_FIELDS.items():
-            body = ext.get(name)
-            for key in fields:
-                if isinstance(body, dict) and body.get(key) is not None:
-                    doc.ignore(f"materials[{i}].extensions.{name}.{key} not used")
 
 
 def camera_notes(doc: Document, cameras) -> None:
