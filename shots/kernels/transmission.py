@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
 from numba import njit
 
 from shots.kernels.envlight import env_radiance
@@ -25,8 +24,6 @@ from shots.kernels.raystack import (
     set_start,
 )
 from shots.kernels.surface import (
-    S_ATT_DISTANCE,
-    S_ATT_R,
     S_FRONT,
     S_PX,
     S_PY,
@@ -34,6 +31,7 @@ from shots.kernels.surface import (
     S_THICKNESS,
 )
 from shots.kernels.visibility import offset_point
+from shots.kernels.visibility import volume_absorption as absorption  # shared with shadow rays
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
@@ -52,18 +50,6 @@ def medium_attenuation(ray, surf, wr, wg, wb):
         wg *= math.exp(-sg * x)
         wb *= math.exp(-sb * x)
     return wr, wg, wb
-
-
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
-def absorption(surf, c):
-    """Beer–Lambert coefficient σ = −ln(c)/d of channel ``c`` (KHR_materials_volume)."""
-    d = surf[S_ATT_DISTANCE]
-    col = surf[S_ATT_R + c]
-    if not d < np.inf or col >= 1.0:
-        return 0.0
-    if col <= 0.0:
-        return 1e30
-    return -math.log(col) / d
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
