@@ -48,6 +48,7 @@ from shots.camera import Camera, horizontal_fov, yfov_from_xfov
 from shots.colour import TONE_MAPS
 from shots.errors import PresetError
 from shots.look import Background, Environment, Ground, Light, Look
+from shots.model_lights import frame_lights, note_ignored_lights
 from shots.scene import Scene
 
 # The built-in presets: presets/*.toml in a source checkout, this package once installed.
@@ -117,6 +118,7 @@ class ImageSettings(Table):
 class LookSettings(Table):
     exposure: float = Field(0.0, ge=-20.0, le=20.0)  # stops
     tone_map: Literal[TONE_MAPS] = "neutral"
+    model_lights: Literal["rig", "model", "both"] = "rig"  # shots.model_lights
 
 
 class ModelSettings(Table):
@@ -712,6 +714,7 @@ def apply_model_fixes(scene: Scene, preset: Preset) -> Scene:
             notes.append(f"model units: largest extent {extent:.4g} read as {UNIT_NAMES[units]}")
     scale = UNIT_SCALES[units]
     rotation = Z_UP_TO_Y_UP if settings.up_axis == "z" else np.eye(3)
+    scene = note_ignored_lights(scene, preset.look.model_lights)
     if scale == 1.0 and settings.up_axis == "y":
         return scene
     return _transformed(scene, rotation, scale, notes)
@@ -748,18 +751,23 @@ def _transformed(scene: Scene, rotation: np.ndarray, scale: float, notes: list[s
 # --- resolving a preset's look for one camera -------------------------------------------------
 
 
-def resolve_look(preset: Preset, camera: Camera, centre, radius: float, seed: int) -> Look:
-    """The world-space ``Look`` of one frame: the rig placed around this camera's view.
+def resolve_look(preset: Preset, camera: Camera, centre, radius: float, seed: int,
+                 model_lights=()) -> Look:
+    """The world-space ``Look`` of one frame: the rig placed around this camera's view, and
+    the model's own lights when ``[look] model_lights`` asks for them.
 
     Parameters
     ----------
     centre : (3,) the model's centre (the lights aim at it); radius : its bounding radius.
+    model_lights : the scene's ``FileLight``s (KHR_lights_punctual).
     """
     centre = np.asarray(centre, np.float64)
     radius = radius if radius > 0.0 else 1.0
     environment = preset.environment
     return Look(
-        lights=tuple(place_light(light, camera, centre, radius) for light in preset.lights),
+        lights=frame_lights(preset.look.model_lights,
+                            tuple(place_light(light, camera, centre, radius)
+                                  for light in preset.lights), model_lights),
         environment=Environment(
             zenith=environment.zenith, horizon=environment.horizon, nadir=environment.nadir,
             intensity=environment.intensity, image=environment.image,
