@@ -14,11 +14,11 @@ from typing import Annotated
 
 import typer
 from rich.console import Console
-from rich.markup import escape
 from rich.table import Table
 
 from shots.batch.cli_command import batch
 from shots.errors import ShotsError
+from shots.terminal import literal
 
 app = typer.Typer(
     add_completion=False,
@@ -31,13 +31,13 @@ out = Console()
 
 def fail(message: str, code: int = 2) -> None:
     """Print one line on stderr and exit with ``code``."""
-    err.print(f"[bold red]error:[/] {escape(message)}", highlight=False, soft_wrap=True)
+    err.print(f"[bold red]error:[/] {literal(message)}", highlight=False, soft_wrap=True)
     raise typer.Exit(code)
 
 
 def warn(message: str) -> None:
     """Print one warning line on stderr, unwrapped (a hint must stay greppable as one line)."""
-    err.print(f"[yellow]warning:[/] {escape(message)}", highlight=False, soft_wrap=True)
+    err.print(f"[yellow]warning:[/] {literal(message)}", highlight=False, soft_wrap=True)
 
 
 def parse_size(text: str | None) -> tuple[int, int] | None:
@@ -61,6 +61,10 @@ PresetOpt = Annotated[
 SceneOpt = Annotated[
     str | None, typer.Option("--scene", help="glTF scene index or name (default: the file's).")
 ]
+LimitOpt = Annotated[
+    list[str] | None, typer.Option(
+        "--limit", help="Override a budget of the preset's [limits], KEY=VALUE (repeatable).")
+]
 
 
 @app.command()
@@ -73,24 +77,27 @@ def render(
     variant: Annotated[
         str | None, typer.Option("--variant", help="KHR_materials_variants name to render.")
     ] = None,
+    limit: LimitOpt = None,
 ) -> None:
     """Render one model with a preset's shots (default: one three-quarter still)."""
+    from shots.limits import preset_with_limits
     from shots.pipeline import render_model
+    from shots.presets import load_preset
 
     try:
         written = render_model(
             model,
             output,
-            preset,
+            preset_with_limits(load_preset(preset), limit),
             size=parse_size(size),
             scene_choice=parse_scene(scene),
             variant=variant,
-            on_frame=lambda r: out.print(f"wrote {r.path}", highlight=False),
+            on_frame=lambda r: out.print(f"wrote {literal(r.path)}", highlight=False),
             on_warning=lambda text: warn(f"{model}: {text}"),
         )
     except ShotsError as exc:
         fail(str(exc))
-    out.print(f"{len(written)} image(s) in {output}", highlight=False)
+    out.print(f"{len(written)} image(s) in {literal(output)}", highlight=False)
 
 
 @app.command()
@@ -108,28 +115,33 @@ def plan(
     shot: Annotated[
         list[str] | None, typer.Option("--shot", help="Plan only this shot (repeatable).")
     ] = None,
+    limit: LimitOpt = None,
 ) -> None:
     """Print the camera of every frame a preset plans for a model, and draw the camera path."""
     from shots.gltf import load_scene
+    from shots.limits import preset_with_limits
     from shots.pathplot import write_path_picture
     from shots.planner import plan_frames
     from shots.presets import apply_model_fixes, load_preset
 
     picture = picture or Path(f"{model.stem}-plan.png")
     try:
-        chosen = load_preset(preset)
-        loaded = apply_model_fixes(load_scene(model, scene=parse_scene(scene)), chosen)
+        chosen = preset_with_limits(load_preset(preset), limit)
+        scene_model = load_scene(model, scene=parse_scene(scene), limits=chosen.limits)
+        loaded = apply_model_fixes(scene_model, chosen)
         frames = plan_frames(chosen, loaded, shots=shot or None)
         write_path_picture(frames, loaded, picture)
     except ShotsError as exc:
         fail(str(exc))
     rows = [frame.to_json() for frame in frames]
-    if as_json:
-        sys.stdout.write(json.dumps(rows, indent=1) + "\n")
+    if as_json:  # strict JSON: a non-finite number (never planned on purpose) becomes null
+        from shots.check.report import finite_or_null
+
+        sys.stdout.write(json.dumps(finite_or_null(rows), indent=1, allow_nan=False) + "\n")
         return
     for warning in loaded.warnings:
-        err.print(f"warning: {escape(warning)}", highlight=False)
-    table = Table(title=f"{preset} × {model.name}: {len(rows)} frames")
+        err.print(f"warning: {literal(warning)}", highlight=False)
+    table = Table(title=literal(f"{preset} × {model.name}: {len(rows)} frames"))
     for column in ("shot", "frame", "view", "eye", "target", "up", "lens", "size"):
         table.add_column(column)
     for row in rows:
@@ -139,7 +151,7 @@ def plan(
             fmt3(row["up"]), lens, f"{row['width']}x{row['height']}",
         )
     Console(width=max(out.width, 150)).print(table)
-    out.print(f"camera path picture: {picture}", highlight=False)
+    out.print(f"camera path picture: {literal(picture)}", highlight=False)
 
 
 @app.command()
@@ -170,21 +182,25 @@ def check(
         str | None,
         typer.Option("--shot", help="Only images whose path names this shot, e.g. thumbnail."),
     ] = None,
+    limit: LimitOpt = None,
 ) -> None:
     """Measure every thumbnail's fill, centring, background and exposure; flag the odd ones."""
     from shots.check import check_renders
+    from shots.limits import DEFAULT, with_overrides
 
     try:
+        max_pixels = with_overrides(DEFAULT, limit).image_pixels
         images = thumbnails_in(renders, shot)
         if not images:
             fail(f"{renders}: no rendered images found" + (f" for shot {shot!r}" if shot else ""))
-        report = check_renders(images)
+        report = check_renders(images, max_pixels=max_pixels)
     except ShotsError as exc:
         fail(str(exc))
     for image, reasons in report.flagged:
-        out.print(f"[yellow]flagged[/] {image}: {'; '.join(reasons)}", highlight=False)
+        out.print(f"[yellow]flagged[/] {literal(image)}: {literal('; '.join(reasons))}",
+                  highlight=False)
     out.print(f"{len(report.flagged)} of {len(report.images)} image(s) flagged; "
-              f"report in {report.markdown_path}", highlight=False)
+              f"report in {literal(report.markdown_path)}", highlight=False)
     raise typer.Exit(1 if report.flagged else 0)
 
 

@@ -168,7 +168,7 @@ class Layout:
         if not target.is_relative_to(self.out_dir) or target == self.out_dir:
             raise BatchError("--template", self.template, f"{relative!r} leaves the output folder")
         posix = "/".join(parts)
-        if posix in RESERVED or parts[0] == MANIFEST_FOLDER:
+        if parts[0] in RESERVED or parts[0] == MANIFEST_FOLDER:  # the file, or under its name
             raise BatchError("--template", self.template,
                              f"{posix!r} is where the batch keeps its own files")
         return posix

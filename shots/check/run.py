@@ -22,6 +22,7 @@ from shots.check.report import (
     report_markdown,
 )
 from shots.errors import BatchError
+from shots.limits import DEFAULT
 from shots.output import atomic_write_bytes
 
 Source = str | os.PathLike | Iterable[str | os.PathLike]
@@ -39,6 +40,7 @@ def check_renders(
     *,
     report_dir: str | os.PathLike | None = None,
     measured: Mapping[Path, Measurement] | None = None,
+    max_pixels: int = DEFAULT.image_pixels,
 ) -> CheckReport:
     """Measure every PNG image, flag the ones that do not match the catalog, write the report.
 
@@ -51,6 +53,7 @@ def check_renders(
         else the deepest folder holding every listed path.
     measured : measurements already taken (by image path, with ``tolerances``' mask rules), used
         instead of reading those files again; a batch measures its frames as they arrive.
+    max_pixels : an image declaring more pixels is flagged unreadable, never decoded.
 
     Returns
     -------
@@ -69,7 +72,7 @@ def check_renders(
     sources = source_paths(out_dir)
     images = find_images(sources)
     folder = Path(report_dir) if report_dir is not None else default_report_folder(sources)
-    report = judge_images(images, folder, tolerances, measured)
+    report = judge_images(images, folder, tolerances, measured, max_pixels)
     markdown_path, json_path = folder / "report.md", folder / "report.json"
     write_if_changed(markdown_path, report_markdown(report).encode("utf-8"))
     write_if_changed(json_path, report_json(report).encode("utf-8"))
@@ -85,7 +88,8 @@ def check_renders(
 
 
 def judge_images(images: list[Path], folder: Path, tolerances: Tolerances,
-                 known: Mapping[Path, Measurement] | None = None) -> CheckReport:
+                 known: Mapping[Path, Measurement] | None = None,
+                 max_pixels: int = DEFAULT.image_pixels) -> CheckReport:
     """Measure ``images`` (those not in ``known``) and judge each against the others (nothing
     is written)."""
     rules = tolerances.mask_rules()
@@ -96,7 +100,7 @@ def judge_images(images: list[Path], folder: Path, tolerances: Tolerances,
             measured[path] = known[path]
             continue
         try:
-            measured[path] = measure_image(path, rules)
+            measured[path] = measure_image(path, rules, max_pixels)
         except (OSError, ValueError) as exc:
             unreadable[path] = f"cannot read the image: {exc}"
     medians = catalog_medians(list(measured.values()), tolerances)
