@@ -21,7 +21,7 @@ from shots.batch.cli_command import batch
 from shots.batch.manifest import index_csv_bytes
 from shots.batch.progress import print_summary
 from shots.batch.run import BatchSummary, ModelOutcome
-from shots.errors import RenderError
+from shots.errors import BatchError, RenderError
 
 HERE = Path(__file__).parent
 SAMPLES = HERE / "data" / "samples"
@@ -220,3 +220,241 @@ def test_time_limit_interrupts_python_code():
     with pytest.raises(RenderError, match="limit seconds"), time_limit(0.2, "model.glb"):
         while True:
             pass
+
+
+# ---------------------------------------------------------------- 7. damaged outputs ----------
+
+def test_a_damaged_frame_is_rendered_again_and_the_sheet_survives(tmp_path):
+    catalog = tmp_path / "catalog"
+    catalog.mkdir()
+    shutil.copy(SAMPLES / "Box.gltf", catalog / "Box.gltf")
+    preset = write_preset(tmp_path)
+    out = tmp_path / "out"
+    run_batch(catalog, preset, out, quiet=True, workers=1)
+    frame = out / "Box" / "default" / "hero" / "000.png"
+    good = frame.read_bytes()
+    frame.write_bytes(good[: len(good) // 2])  # truncated after the run
+    second = run_batch(catalog, preset, out, quiet=True, workers=1)
+    assert (second.frames_rendered, second.frames_skipped, second.exit_code) == (1, 0, 0)
+    assert frame.read_bytes() == good  # deterministic render: the same bytes again
+    third = run_batch(catalog, preset, out, quiet=True, workers=1)
+    assert (third.frames_rendered, third.frames_skipped) == (0, 1)
+
+
+def test_contact_sheet_leaves_an_unreadable_frame_blank(tmp_path):
+    from PIL import Image
+
+    from shots.batch.sheet import PAD, PAPER, THUMB, SheetCell, contact_sheet_bytes
+
+    broken = tmp_path / "000.png"
+    broken.write_bytes(b"\x89PNG\r\n\x1a\n\x00\x00")  # a PNG signature, then nothing
+    sheet = Image.open(io.BytesIO(contact_sheet_bytes([[SheetCell(broken, "m", "v / s")]])))
+    cell = np.asarray(sheet.convert("RGB"))[PAD : PAD + THUMB, PAD : PAD + THUMB]
+    assert (cell == np.array(PAPER, np.uint8)).all()
+
+
+@pytest.mark.parametrize("code", ["ENOSPC", "EDQUOT"])
+def test_a_full_disk_is_one_line_and_leaves_no_partial_file(tmp_path, monkeypatch, code):
+    import errno
+
+    from shots.output import atomic_write_bytes
+
+    def full(fd):
+        raise OSError(getattr(errno, code), os.strerror(getattr(errno, code)))
+
+    monkeypatch.setattr(os, "fsync", full)
+    with pytest.raises(RenderError) as err:
+        atomic_write_bytes(tmp_path / "a.png", b"x" * 1000)
+    assert "nothing written" in str(err.value) and "\n" not in str(err.value)
+    assert list(tmp_path.iterdir()) == []
+
+
+FSIZE_CHILD = """
+import resource, sys
+from pathlib import Path
+from shots.errors import ShotsError
+from shots.output import atomic_write_bytes
+resource.setrlimit(resource.RLIMIT_FSIZE, (4096, 4096))  # POSIX setrlimit: writes past it EFBIG
+try:
+    atomic_write_bytes(Path(sys.argv[1]) / "big.png", b"x" * 100_000)
+except ShotsError as exc:
+    print(exc)
+"""
+
+
+def test_a_file_size_limit_is_one_line_and_leaves_no_partial_file(tmp_path):
+    import subprocess
+    import sys
+
+    done = subprocess.run([sys.executable, "-c", FSIZE_CHILD, str(tmp_path)],
+                          capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr
+    assert "File too large" in done.stdout and "nothing written" in done.stdout
+    assert list(tmp_path.iterdir()) == []
+
+
+# ---------------------------------------------------------------- 9. cluster trust ------------
+
+def rendered_result(model="m.glb", variant="default", **changes):
+    from shots.batch.worker import RenderedImage, TaskResult
+
+    image = dict(shot="hero", index=0, view="front", camera={"width": 2, "height": 1},
+                 seed=1, png=b"\x89PNG\r\n\x1a\n...", exr=None, render_seconds=0.0,
+                 encode_seconds=0.0, codes=np.zeros((1, 2, 4), np.uint8))
+    image.update(changes)
+    return TaskResult(model, variant, images=[RenderedImage(**image)])
+
+
+def test_results_from_workers_are_checked_before_use():
+    from shots.batch.worker import result_problem
+
+    assert result_problem(rendered_result(), "m.glb", "default") is None
+    assert "not a TaskResult" in result_problem({"model": "m.glb"}, "m.glb", "default")
+    assert "another model" in result_problem(rendered_result("x.glb"), "m.glb", "default")
+    assert "not PNG" in result_problem(rendered_result(png=b"GIF89a"), "m.glb", "default")
+    assert "wrong type or size" in result_problem(
+        rendered_result(codes=np.zeros((9, 9, 4), np.uint8)), "m.glb", "default")
+    assert "malformed image fields" in result_problem(rendered_result(index="0"), "m.glb",
+                                                      "default")
+
+
+def test_a_worker_with_another_version_refuses_the_task(monkeypatch):
+    import distributed
+
+    from shots.batch import worker
+
+    class FakeWorker:
+        address = "tcp://10.0.0.9:4000"
+
+    monkeypatch.setattr(distributed, "get_worker", lambda: FakeWorker())
+    called = []
+    result = worker.on_dask_worker(lambda *a: called.append(a), {}, "0.0.0-other", "m.glb",
+                                   "hash", None, "preset-hash")
+    assert called == [] and result.failure is not None
+    assert "the batch 0.0.0-other" in result.failure.message
+
+
+def test_a_stale_model_copy_is_refused(tmp_path):
+    from shots.batch.worker import _check_inputs
+
+    model = tmp_path / "Box.gltf"
+    shutil.copy(SAMPLES / "Box.gltf", model)
+    _, inputs = jobs.model_hashes(model)
+    _check_inputs(str(model), inputs)  # the same files: accepted
+    model.write_text(model.read_text().replace('"Box"', '"Box2"', 1) + " ")
+    with pytest.raises(RenderError, match="differ from those the batch hashed"):
+        _check_inputs(str(model), inputs)
+
+
+def test_tls_options_need_their_files(tmp_path):
+    shutil.copy(SAMPLES / "Box.gltf", tmp_path)
+    result = batch_cli(tmp_path, "--preset", "thumbnail", "-o", tmp_path / "out",
+                       "--cluster", "tls://127.0.0.1:1", "--tls-ca-file", tmp_path / "ca.pem",
+                       "--tls-cert", tmp_path / "me.pem")
+    assert result.exit_code == 2
+    assert "--tls-ca-file: no such file" in " ".join(result.output.split())
+    result = batch_cli(tmp_path, "--preset", "thumbnail", "-o", tmp_path / "out",
+                       "--tls-cert", tmp_path / "me.pem")
+    assert result.exit_code == 2 and "TLS needs --cluster" in " ".join(result.output.split())
+
+
+def make_certificates(folder: Path) -> dict[str, Path]:
+    """A CA and one certificate it signs for 127.0.0.1 (X.509 via the openssl command)."""
+    import subprocess
+
+    def run(*args):
+        subprocess.run(["openssl", *args], check=True, capture_output=True, cwd=folder)
+
+    run("req", "-x509", "-newkey", "rsa:2048", "-nodes", "-days", "2", "-subj", "/CN=test-ca",
+        "-keyout", "ca.key", "-out", "ca.pem")
+    run("req", "-newkey", "rsa:2048", "-nodes", "-subj", "/CN=127.0.0.1", "-keyout", "node.key",
+        "-out", "node.csr")
+    (folder / "san.cnf").write_text("subjectAltName = IP:127.0.0.1, DNS:localhost\n")
+    run("x509", "-req", "-in", "node.csr", "-CA", "ca.pem", "-CAkey", "ca.key",
+        "-CAcreateserial", "-days", "2", "-extfile", "san.cnf", "-out", "node.pem")
+    return {name: folder / f"{name}" for name in ("ca.pem", "node.pem", "node.key")}
+
+
+@pytest.mark.slow
+def test_a_tls_cluster_renders_with_the_tls_options(tmp_path):
+    distributed = pytest.importorskip("distributed")
+    if shutil.which("openssl") is None:
+        pytest.skip("needs the openssl command to make certificates")
+    from distributed.security import Security
+
+    from shots.batch.runner import ClusterTls
+
+    certs = make_certificates(tmp_path)
+    ca, cert, key = (str(certs[n]) for n in ("ca.pem", "node.pem", "node.key"))
+    security = Security(tls_ca_file=ca, tls_scheduler_cert=cert, tls_scheduler_key=key,
+                        tls_worker_cert=cert, tls_worker_key=key, tls_client_cert=cert,
+                        tls_client_key=key, require_encryption=True)
+    catalog = tmp_path / "catalog"
+    catalog.mkdir()
+    shutil.copy(SAMPLES / "Box.gltf", catalog)
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False,
+                                  protocol="tls://", host="127.0.0.1", security=security,
+                                  dashboard_address=None) as cluster:
+        address = cluster.scheduler_address
+        assert address.startswith("tls://")
+        summary = run_batch(catalog, write_preset(tmp_path), tmp_path / "out", quiet=True,
+                            cluster=address, cluster_tls=ClusterTls(ca, cert, key))
+        assert summary.exit_code == 0 and summary.frames_rendered == 1
+        # without the TLS files: one line saying what to give, the batch refused
+        with pytest.raises(BatchError, match="uses TLS: give --tls-ca-file"):
+            run_batch(catalog, write_preset(tmp_path), tmp_path / "out2", quiet=True,
+                      cluster=address, force=True)
+
+
+# ---------------------------------------------------------------- single commands -------------
+
+def test_render_refuses_an_encoded_nul_in_one_line(tmp_path):
+    from shots.cli import app
+
+    result = CliRunner().invoke(app, ["render", str(HOSTILE / "uri_nul_encoded.gltf"), "-o",
+                                      str(tmp_path), "--size", "16x16"])
+    assert result.exit_code == 2
+    assert "buffers[0].uri: URI contains a NUL character" in " ".join(result.output.split())
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_render_shows_escape_sequences_in_warnings_escaped(tmp_path):
+    from shots.cli import app
+
+    b = GltfBuilder()
+    b.scene([b.node(mesh=b.mesh(TRI))])
+    b.use_extension("\x1b[2J\x1b[1;1HFAKE")  # an unknown, optional extension: a warning
+    model = b.write_gltf(tmp_path / "m.gltf")
+    result = CliRunner().invoke(app, ["render", str(model), "-o", str(tmp_path / "out"),
+                                      "--size", "16x16", "--preset", str(write_preset(tmp_path))])
+    assert result.exit_code == 0, result.output
+    assert "\x1b" not in result.output
+    assert "extensions ignored: \\x1b[2J\\x1b[1;1HFAKE" in result.output
+
+
+def test_check_reads_the_header_before_decoding_a_huge_png(tmp_path):
+    import struct
+    import zlib
+
+    from shots.cli import app
+
+    # a 10000 x 10000 RGBA PNG of 12 KB: zlib stream of zero rows (PNG spec §11.2.2 IHDR)
+    row = b"\x00" + bytes(4 * 10000)
+    data = zlib.compress(row * 10000, 9)
+
+    def chunk(kind, body):
+        return struct.pack(">I", len(body)) + kind + body + struct.pack(
+            ">I", zlib.crc32(kind + body))
+
+    png = (b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", struct.pack(">IIBBBBB", 10000, 10000, 8, 6,
+                                                              0, 0, 0))
+           + chunk(b"IDAT", data) + chunk(b"IEND", b""))
+    assert len(png) < 500_000
+    (tmp_path / "renders").mkdir()
+    (tmp_path / "renders" / "huge.png").write_bytes(png)
+    result = CliRunner().invoke(app, ["check", str(tmp_path / "renders")])
+    assert result.exit_code == 1, result.output
+    assert "over the limit image_pixels" in " ".join(result.output.split())
+    result = CliRunner().invoke(app, ["check", str(tmp_path / "renders"), "--limit",
+                                      "image_pixels=-1"])
+    assert result.exit_code == 2 and "--limit: image_pixels" in result.output

@@ -129,6 +129,9 @@ class DaskRunner:
         except ImportError:
             raise BatchError("--cluster", None,
                              "needs Dask: pip install 'dask[distributed]'") from None
+        if address.startswith("tls://") and tls is None:
+            raise BatchError("--cluster", None, f"{address!r} uses TLS: give --tls-ca-file and "
+                                                "--tls-cert (and --tls-key)")
         security = tls.security() if tls is not None else None
         try:
             self._client = Client(address, timeout="20s", set_as_default=False,
@@ -186,14 +189,16 @@ class ClusterTls:
     cert: str
     key: str | None = None
 
-    def security(self):
-        from distributed.security import Security
-
+    def __post_init__(self):
         for name in ("ca_file", "cert", "key"):
             path = getattr(self, name)
             if path is not None and not os.path.isfile(path):
                 raise BatchError(f"--tls-{name.replace('_', '-')}", None,
                                  f"no such file {path!r}")
+
+    def security(self):
+        from distributed.security import Security
+
         return Security(tls_ca_file=self.ca_file, tls_client_cert=self.cert,
                         tls_client_key=self.key, require_encryption=True)
 

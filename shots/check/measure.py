@@ -26,6 +26,7 @@ renders for exact masks. A visible floor or sweep is read as product in both mod
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -121,13 +122,16 @@ def read_rgba(path: Path, max_pixels: int = DEFAULT.image_pixels) -> np.ndarray:
     than ``max_pixels`` (checked before decoding: a small PNG can declare 10000 × 10000).
     """
     try:
-        with Image.open(path) as image:
+        with warnings.catch_warnings():  # Pillow's own bomb warning: our limit decides
+            warnings.simplefilter("ignore", Image.DecompressionBombWarning)
+            image = Image.open(path)
+        with image:
             width, height = image.size
             if width * height > max_pixels:
                 raise ValueError(f"the image is {width}x{height}, over the limit image_pixels "
                                  f"{max_pixels}")
             rgba = np.asarray(image.convert("RGBA"), np.float64) / 255.0
-    except UnidentifiedImageError as exc:
+    except (UnidentifiedImageError, Image.DecompressionBombError) as exc:
         raise ValueError(str(exc)) from None
     return rgba
 
