@@ -225,3 +225,12 @@ def test_mutated_json_text_raises_only_gltf_error(fuzz_dir, flips):
     target = fuzz_dir / "mutated_text.gltf"
     target.write_bytes(bytes(text))
     load_bounded(target)
+
+
+def test_equal_variant_names_are_made_unique():
+    from shots.gltf import unique_names
+
+    names = unique_names(["a"] * 4000)
+    assert len(set(names)) == 4000 and names[:3] == ["a", "a #2", "a #3"]
+    # a made-up name never takes one a later variant really has
+    assert unique_names(["a", "a", "a #2"]) == ["a", "a #3", "a #2"]

@@ -205,6 +205,10 @@ def test_a_model_over_the_time_limit_fails_alone(tmp_path):
     shutil.copy(SAMPLES / "Box.gltf", catalog / "Box.gltf")
     shutil.copy(HOSTILE / "bomb_instancing.gltf", catalog / "slow.gltf")
     # the instance budget raised so only the time limit can stop the 1 M primitive instances
+    # the kernels loaded first (a run without the slow model), so only the slow model's
+    # own work counts against the one second
+    run_batch(catalog / "Box.gltf", write_preset(tmp_path), tmp_path / "warm", quiet=True,
+              workers=1)
     preset = write_preset(tmp_path, STILL + "[limits]\ninstances = 2000000\nseconds = 1\n")
     out = tmp_path / "out"
     summary = run_batch(catalog, preset, out, quiet=True, workers=1)
@@ -458,3 +462,18 @@ def test_check_reads_the_header_before_decoding_a_huge_png(tmp_path):
     result = CliRunner().invoke(app, ["check", str(tmp_path / "renders"), "--limit",
                                       "image_pixels=-1"])
     assert result.exit_code == 2 and "--limit: image_pixels" in result.output
+
+
+@pytest.mark.slow
+def test_a_worker_process_over_the_time_limit_fails_the_model_alone(tmp_path):
+    catalog = tmp_path / "catalog"
+    catalog.mkdir()
+    shutil.copy(SAMPLES / "Box.gltf", catalog / "Box.gltf")
+    shutil.copy(HOSTILE / "bomb_instancing.gltf", catalog / "slow.gltf")
+    # a fresh worker's first task also loads the compiled kernels: room for that
+    preset = write_preset(tmp_path, STILL + "[limits]\ninstances = 2000000\nseconds = 20\n")
+    summary = run_batch(catalog, preset, tmp_path / "out", quiet=True, workers=2)
+    errors = {m.listed_as: m.error for m in summary.models}
+    assert errors["Box.gltf"] is None
+    assert "took more than 20 s (limit seconds)" in errors["slow.gltf"]
+    catalog_outputs_exist(tmp_path / "out")

@@ -166,6 +166,12 @@ def bombs() -> None:
     if draco is not None:
         write_json("bomb_draco.gltf", draco, "accessors[0].count", "over the limit triangles",
                    limits={"triangles": 10_000})
+        # the same payload under accessors declaring one triangle: the Draco header's counts
+        # (Draco bitstream 2.2 connectivity header) refuse it before decoding
+        draco["accessors"][0]["count"], draco["accessors"][1]["count"] = 3, 3
+        write_json("bomb_draco_lying_counts.gltf", draco,
+                   "meshes[0].primitives[0].extensions.KHR_draco_mesh_compression.bufferView",
+                   "the Draco header declares 19602 faces", limits={"triangles": 10_000})
 
 
 PRESETS = HERE / "presets"
