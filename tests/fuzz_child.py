@@ -20,7 +20,7 @@ from hypothesis import strategies as st
 
 sys.path.insert(0, str(Path(__file__).parent))
 
-from test_gltf_hostile import PATHS, RICH_GLB, RICH_TREE, json_values  # noqa: E402
+from test_gltf_hostile import PATHS, RICH_GLB, edited_tree, json_values  # noqa: E402
 
 from shots.errors import GltfError, PresetError, ShotsError  # noqa: E402
 from shots.gltf import load_scene  # noqa: E402
@@ -42,22 +42,6 @@ def load_model(path: Path) -> None:
         load_scene(path, limits=LIMITS)
     except GltfError as exc:
         assert "not enough memory" not in exc.message, f"a budget did not hold: {exc}"
-
-
-def edit_tree(edits) -> dict:
-    tree = json.loads(json.dumps(RICH_TREE))
-    for path, value in edits:
-        node = tree
-        try:
-            for key in path[:-1]:
-                node = node[key]
-            if value == "<delete>":
-                del node[path[-1]]
-            else:
-                node[path[-1]] = value
-        except (KeyError, IndexError, TypeError):
-            continue
-    return tree
 
 
 # --- preset TOML ------------------------------------------------------------------------------
@@ -128,7 +112,7 @@ def main(examples: int) -> int:
     @given(edits=st.lists(st.tuples(st.sampled_from(PATHS), json_values | st.just("<delete>")),
                           min_size=1, max_size=4))
     def gltf_json(edits):
-        (WORK / "fuzzed.gltf").write_text(json.dumps(edit_tree(edits)))
+        (WORK / "fuzzed.gltf").write_text(json.dumps(edited_tree(edits)))
         load_model(WORK / "fuzzed.gltf")
 
     @settings_for(examples)

@@ -182,6 +182,13 @@ def test_rich_model_loads(fuzz_dir):
 @given(edits=st.lists(st.tuples(st.sampled_from(PATHS), json_values | st.just("<delete>")),
                       min_size=1, max_size=3))
 def test_mutated_json_raises_only_gltf_error(fuzz_dir, edits):
+    target = fuzz_dir / "mutated.gltf"
+    target.write_text(json.dumps(edited_tree(edits)))
+    load_bounded(target)
+
+
+def edited_tree(edits) -> dict:
+    """A copy of RICH_TREE with (path, value or "<delete>") edits applied."""
     tree = json.loads(json.dumps(RICH_TREE))
     for path, value in edits:
         node = tree
@@ -194,9 +201,7 @@ def test_mutated_json_raises_only_gltf_error(fuzz_dir, edits):
                 node[path[-1]] = value
         except (KeyError, IndexError, TypeError):
             continue  # an earlier edit removed or replaced this path
-    target = fuzz_dir / "mutated.gltf"
-    target.write_text(json.dumps(tree))
-    load_bounded(target)
+    return tree
 
 
 @settings(max_examples=120, deadline=2000, suppress_health_check=[HealthCheck.too_slow])
