@@ -6,8 +6,8 @@ Each case runs in its own child process with its address space capped (RLIMIT_AS
 wall-time limit; the child's peak resident memory comes from wait4's rusage. ``--code`` puts
 another checkout's ``shots`` first on the path, so the same cases measure a version before a
 change side by side (``git archive COMMIT | tar -x -C FOLDER``). The inputs are built once in
-/tmp/shots_bench_hostile. Last line: ``headline: worst peak P MiB, worst time T s`` over the
-cases that a budget should stop.
+/tmp/shots_bench_hostile. Last line: ``headline: worst peak P MiB, worst time T s`` over all
+cases (each includes the child interpreter's start and imports, about 150 MiB and a second).
 """
 
 from __future__ import annotations
