@@ -414,7 +414,7 @@ def test_bad_input(tmp_path):
     save(tmp_path / "oak-disc.png", disc_image())
     with pytest.raises(PresetError, match="did you mean 'centre_offset'"):
         check_renders(tmp_path, {"center_offset": 0.1})
-    with pytest.raises(PresetError, match="non-negative number"):
+    with pytest.raises(PresetError, match="check.fill: expected a number"):
         check_renders(tmp_path, {"fill": "wide"})
 
 

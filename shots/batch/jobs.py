@@ -82,11 +82,12 @@ def _external_uris(path: Path) -> set[str]:
 def preset_sha256(preset: Preset) -> str:
     """SHA-256 of the resolved preset as canonical JSON (sorted keys, no spaces).
 
-    The description is left out (it changes no pixel); an environment image is represented by
+    The description and the check's tolerances are left out (they change no pixel); an environment image is represented by
     its content hash rather than its path, so moving the preset does not re-render a catalog.
     """
     data = preset.model_dump(mode="json")
     data.pop("description", None)
+    data.pop("check", None)
     image = data.get("environment", {}).get("image")
     if image:
         data["environment"]["image"] = "sha256:" + sha256_file(Path(image))
