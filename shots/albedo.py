@@ -8,6 +8,10 @@ One ray per pixel centre through the BVH; at the first surface hit, the glTF bas
 matte surface would show. The rendered luminance over the same pixels divided by the albedo
 luminance is then the light the product received, whatever its colour: a light and a dark
 fabric under the same lights read alike, a doubled light reads twice as high.
+
+Only matte surfaces count: metals, clear-coated lacquer, glass (transmission) and glowing
+surfaces show the room's lights mirrored, through or emitted rather than their albedo lit, so a
+high-gloss stool would read several times brighter than an oak chair under the same lights.
 """
 
 from __future__ import annotations
@@ -17,20 +21,22 @@ import numpy as np
 from shots.accel import intersect_closest
 from shots.camera import Camera
 from shots.colour import LUMA_709
-from shots.kernels.albedo import base_colours
+from shots.kernels.albedo import A_COVERAGE, A_GLOSS, A_METALLIC, N_ALBEDO, base_colours
 
 METAL = 0.5  # metallic above this: the colour is a reflectance of the room, not an albedo
 WHITE = 0.99  # a base colour with every channel at least this is the untextured default
+MIN_PIXELS = 16  # fewer matte pixels than this give no reading
 
 
 def albedo_image(prepared, camera: Camera) -> np.ndarray:
-    """(h, w, 5) float64: linear base colour R, G, B, coverage and metallic of the first surface
-    at each pixel centre; all zero where the ray misses the model (coverage 0)."""
+    """(h, w, N_ALBEDO) float64: the first surface at each pixel centre, columns ``A_*`` of
+    ``shots.kernels.albedo`` (base colour, coverage, metallic, gloss); all zero where the ray
+    misses the model (coverage 0)."""
     origins, directions = camera.pixel_rays()
     _, tri, b1, b2 = intersect_closest(prepared.bvh, origins, directions)
-    out = np.zeros((len(tri), 5))
+    out = np.zeros((len(tri), N_ALBEDO))
     base_colours(tri, b1, b2, directions, *prepared.packed, out)
-    return out.reshape(camera.height, camera.width, 5)
+    return out.reshape(camera.height, camera.width, N_ALBEDO)
 
 
 def inner_pixels(covered: np.ndarray) -> np.ndarray:
@@ -46,7 +52,7 @@ def inner_pixels(covered: np.ndarray) -> np.ndarray:
 
 
 def exposure_reading(prepared, camera: Camera, rgba: np.ndarray, exposure: float) -> dict | None:
-    """Rendered and albedo luminance over the product's non-metal pixels, for the manifest.
+    """Rendered and albedo luminance over the product's matte pixels, for the manifest.
 
     Parameters
     ----------
@@ -56,13 +62,14 @@ def exposure_reading(prepared, camera: Camera, rgba: np.ndarray, exposure: float
     Returns
     -------
     {"rendered": mean linear Y × 2^exposure, "albedo": mean base colour Y, "white": share of
-    those pixels whose base colour is pure white, "pixels": how many}, or None when no
-    non-metal surface shows.
+    those pixels whose base colour is pure white, "pixels": how many}, or None when fewer than
+    ``MIN_PIXELS`` matte pixels show.
     """
     albedo = albedo_image(prepared, camera)
-    pixels = inner_pixels(albedo[..., 3] >= 0.5) & (albedo[..., 4] <= METAL)
+    matte = (albedo[..., A_METALLIC] <= METAL) & (albedo[..., A_GLOSS] <= 0.0)
+    pixels = inner_pixels(albedo[..., A_COVERAGE] >= 0.5) & matte
     count = int(pixels.sum())
-    if count == 0:
+    if count < MIN_PIXELS:
         return None
     base = albedo[..., :3][pixels]
     rendered = np.asarray(rgba, np.float64)[..., :3][pixels]

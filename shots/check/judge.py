@@ -42,10 +42,11 @@ mostly plain lacquer and paint, a flat product is normal and the check stays off
 
 *Exposure* is judged on the light the product received, not on its colour. A batch traces one
 ray per pixel through the model and reads the base colour of the first surface (``shots.albedo``);
-the rendered luminance of the product's non-metal pixels divided by the luminance of their base
+the rendered luminance of the product's matte pixels divided by the luminance of their base
 colour plus the dielectric reflectance of 0.04 (glTF 2.0 spec, Appendix B: F0 of a dielectric)
-is the light level. A light and a dark fabric under the same lights read alike; a doubled light
-reads one stop higher. An image's light level is compared with the catalog median
+is the light level. Only matte surfaces count (``shots.albedo``): a frame showing nothing but metal,
+clear-coated lacquer, glass or a lamp's glow has no light level and no exposure check. A light
+and a dark fabric under the same lights read alike; a doubled light reads one stop higher. An image's light level is compared with the catalog median
 (``exposure_stops``) and with the median of the same model's variants seen in the same shot and
 frame (``variant_stops``, at least three of them), which agree far more closely than different
 products do. Images without a reading (renders from elsewhere) fall back on their mean luminance
@@ -54,7 +55,7 @@ against the catalog median, which reads colour too: a black sofa stands out amon
 *White base colour.* A base colour texture lost on export leaves the material's factor, white for
 a textured material (glTF 2.0 spec §Materials: the texture is multiplied by the factor), so the
 rendered light level looks right and the product is plain white. When more than ``white_base``
-of the visible non-metal surface has a pure white base colour, the image is flagged.
+of the visible matte surface has a pure white base colour, the image is flagged.
 """
 
 from __future__ import annotations
@@ -158,11 +159,11 @@ def stops(value: float | None, reference: float | None) -> float | None:
 
 def exposure_stops(m: Measurement, record: FrameRecord | None,
                    medians: CatalogMedians) -> float | None:
-    """The image's exposure against the catalog in stops: its light level against the median
-    light level when it has one, else its mean luminance against the median luminance."""
-    light = light_level(record)
-    if light is not None:
-        return stops(light, medians.light)
+    """The image's exposure against the catalog in stops: a batch's frame by its light level
+    against the median light level (None when nothing matte showed), any other image by its
+    mean luminance against the median luminance."""
+    if record is not None:
+        return stops(light_level(record), medians.light)
     if m.luminance is None:
         return None
     return stops(m.luminance, medians.luminance)

@@ -54,7 +54,7 @@
     box.appendChild(before);
     box.appendChild(after);
     box.appendChild(el("div", "seam"));
-    const slider = el("input");
+    const slider = el("input", "split");
     slider.type = "range";
     slider.min = "0";
     slider.max = "100";
@@ -66,7 +66,7 @@
     const labels = el("div", "compare-labels");
     labels.appendChild(el("span", "", "Approved"));
     labels.appendChild(el("span", "", "Now"));
-    const wrap = el("div");
+    const wrap = el("div", "before-after");
     wrap.appendChild(box);
     wrap.appendChild(slider);
     wrap.appendChild(labels);
