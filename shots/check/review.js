@@ -110,13 +110,17 @@
     return card;
   }
 
+  function count(n, one, many) {
+    return n + " " + (n === 1 ? one : many);
+  }
+
   function drawSummary() {
     const summary = document.getElementById("summary");
     const models = new Set(data.images.map(function (image) { return image.model; }));
-    summary.appendChild(el("strong", "", String(data.checked)));
-    summary.appendChild(document.createTextNode(" images of " + models.size + " models \u00b7 "));
+    summary.appendChild(el("strong", "", count(data.checked, "image", "images")));
+    summary.appendChild(document.createTextNode(" of " + count(models.size, "model", "models") + " \u00b7 "));
     summary.appendChild(el("strong", data.flagged ? "count-flag" : "", String(data.flagged)));
-    summary.appendChild(document.createTextNode(" need a look"));
+    summary.appendChild(document.createTextNode(data.flagged === 1 ? " needs a look" : " need a look"));
     if (data.against) summary.appendChild(document.createTextNode(" \u00b7 compared with " + data.against));
   }
 

@@ -78,12 +78,13 @@ def image_data(image: ImageCheck) -> dict:
 
 
 def turntables(folder: Path, records: Mapping[Path, FrameRecord]) -> list[dict]:
-    """Every (model, variant, shot) with more than one frame on disk below ``folder``, its
-    frames in order, as paths relative to ``folder``."""
+    """Every (model, variant, shot) of a moving camera with more than one frame on disk below
+    ``folder``, its frames in order, as paths relative to ``folder``. Stills of named views
+    (their records name the view) are not a turn."""
     root = Path(folder).resolve()
     groups: dict[tuple, list[tuple[int, str]]] = {}
     for path, record in records.items():
-        if path.is_relative_to(root) and path.is_file():
+        if not record.view and path.is_relative_to(root) and path.is_file():
             key = (record.model, record.variant, record.shot)
             groups.setdefault(key, []).append((record.frame, relative_name(path, root)))
     return [
