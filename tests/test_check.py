@@ -492,3 +492,24 @@ def test_check_tolerances_do_not_change_frame_keys():
     base = load_preset("thumbnail")
     tuned = base.model_copy(update={"check": check_settings({"fill": 0.2})})
     assert preset_sha256(tuned) == preset_sha256(base)
+
+
+def test_the_review_page_carries_names_as_data_not_markup(tmp_path):
+    # A folder named like markup becomes the model's name: it must reach the page as JSON text.
+    hostile = "a<script>b"
+    write_catalog(tmp_path / hostile, list(GOOD))
+    report = check_renders(tmp_path)
+    page = report.review_path.read_text(encoding="utf-8")
+    data_text = page.split('<script type="application/json" id="review-data">', 1)[1]
+    data_text = data_text.split("</script>", 1)[0]
+    assert "<" not in data_text
+    data = json.loads(data_text)
+    assert {image["model"] for image in data["images"]} == {hostile}
+    assert all((tmp_path / image["src"]).is_file() for image in data["images"])
+
+
+def test_check_help_says_what_it_measures():
+    text = " ".join(CliRunner().invoke(app, ["check", "--help"]).stdout.split())
+    assert "Measure every PNG render" in text
+    for option in ("--against", "--tolerance", "--preset", "--json", "--shot"):
+        assert option in text

@@ -30,7 +30,8 @@ NO_VARIANT = "default"
 def review_html(report: CheckReport, records: Mapping[Path, FrameRecord]) -> str:
     """The review page of ``report``; ``records`` (by resolved path) supply the turntables."""
     data = json.dumps(review_data(report, records), ensure_ascii=True, allow_nan=False)
-    data = data.replace("</", "<\\/")  # the JSON sits inside a <script> element
+    # The JSON sits inside a <script> element: no "<" may end it or open a comment there.
+    data = data.replace("<", "\\u003c")
     files = resources.files("shots.check")
     page = (files / "review.html").read_text(encoding="utf-8")
     return (page.replace("/*STYLE*/", (files / "review.css").read_text(encoding="utf-8"))
