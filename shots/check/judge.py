@@ -44,13 +44,14 @@ mostly plain lacquer and paint, a flat product is normal and the check stays off
 ray per pixel through the model and reads the base colour of the first surface (``shots.albedo``);
 the rendered luminance of the product's matte pixels divided by the luminance of their base
 colour plus the dielectric reflectance of 0.04 (glTF 2.0 spec, Appendix B: F0 of a dielectric)
-is the light level. Only matte surfaces count (``shots.albedo``): a frame showing nothing but metal,
-clear-coated lacquer, glass or a lamp's glow has no light level and no exposure check. A light
-and a dark fabric under the same lights read alike; a doubled light reads one stop higher. An image's light level is compared with the catalog median
-(``exposure_stops``) and with the median of the same model's variants seen in the same shot and
-frame (``variant_stops``, at least three of them), which agree far more closely than different
-products do. Images without a reading (renders from elsewhere) fall back on their mean luminance
-against the catalog median, which reads colour too: a black sofa stands out among oak.
+is the light level. Only matte surfaces count: a frame showing nothing but metal, clear-coated
+lacquer, glass or a lamp's glow has no light level and no exposure check. A light and a dark
+fabric under the same lights read alike; a doubled light reads one stop higher. An image's light
+level is compared with the catalog median (``exposure_stops``) and with the median of the same
+model's variants seen in the same shot and frame (``variant_stops``, at least three of them),
+which agree far more closely than different products do. Images without a batch record (renders
+from elsewhere) fall back on their mean luminance against the catalog median, which reads colour
+too: a black sofa stands out among oak.
 
 *White base colour.* A base colour texture lost on export leaves the material's factor, white for
 a textured material (glTF 2.0 spec §Materials: the texture is multiplied by the factor), so the
