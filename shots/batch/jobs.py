@@ -92,11 +92,13 @@ def _external_uris(path: Path) -> set[str]:
 def preset_sha256(preset: Preset) -> str:
     """SHA-256 of the resolved preset as canonical JSON (sorted keys, no spaces).
 
-    The description and the limits are left out (they change no pixel); an environment image is represented by
-    its content hash rather than its path, so moving the preset does not re-render a catalog.
+    The description, the check's tolerances and the limits are left out (they change no
+    pixel); an environment image is represented by its content hash rather than its path, so
+    moving the preset does not re-render a catalog.
     """
     data = preset.model_dump(mode="json")
     data.pop("description", None)
+    data.pop("check", None)
     data.pop("limits", None)
     image = data.get("environment", {}).get("image")
     if image:

@@ -129,7 +129,8 @@ def print_summary(summary, console: Console) -> None:
                       soft_wrap=True)
     if summary.report is not None:
         console.print(f"consistency report: {literal(summary.report)} "
-                      f"({len(summary.flagged)} image(s) flagged)", highlight=False)
+                      f"({len(summary.flagged)} image(s) flagged), review page: "
+                      f"{literal(summary.report.with_name('review.html'))}", highlight=False)
     for listed_as, reason in summary.failures:
         console.print(f"[bold red]failed:[/] {literal(listed_as)}: {literal(reason)}", highlight=False,
                       soft_wrap=True)

@@ -37,7 +37,7 @@ from shots.batch.runner import (
 )
 from shots.batch.sheet import CELL, SheetCell, contact_sheet_bytes, thumbnail
 from shots.batch.worker import TaskResult, exr_available, probe_variants, render_task
-from shots.check.judge import Tolerances
+from shots.check.judge import mask_rules
 from shots.check.measure import measure_codes
 from shots.errors import BatchError
 from shots.output import atomic_write_bytes
@@ -346,7 +346,8 @@ class Batch:
         )
 
     def _check_consistency(self):
-        """Write the consistency report (shots.check) over the first frame of every shot."""
+        """Write the consistency report and review page (shots.check) over the first frame of
+        every shot, with the preset's [check] tolerances."""
         from shots.check import check_renders
 
         images = [
@@ -359,7 +360,8 @@ class Batch:
         images = [path for path in images if path.is_file()]
         if not images:
             return None
-        return check_renders(images, report_dir=self.layout.out_dir, measured=self.measured)
+        return check_renders(images, self.preset.check, report_dir=self.layout.out_dir,
+                             measured=self.measured)
 
     def _frame_total(self) -> int:
         per_variant = sum(self.counts.values())
@@ -614,7 +616,7 @@ class Batch:
         """Use a frame's 8-bit codes now (first frames: report and contact sheet) or keep them
         for its animation, instead of decoding its PNG file later."""
         if frame.index == 0:
-            self.measured[path] = measure_codes(codes, path, Tolerances().mask_rules())
+            self.measured[path] = measure_codes(codes, path, mask_rules(self.preset.check))
             self.thumbnails[path] = thumbnail(codes, self._sheet_background())
         if frame.shot in self.animated:
             state.pictures[frame] = codes
@@ -625,7 +627,7 @@ class Batch:
             "view": image.view, "path": path, "exr": exr_path, "key": state.keys[frame],
             "sha256": hashlib.sha256(image.png).hexdigest(),
             "exr_sha256": hashlib.sha256(image.exr).hexdigest() if image.exr else None,
-            "seed": image.seed, "width": image.camera["width"],
+            "seed": image.seed, "albedo": image.albedo, "width": image.camera["width"],
             "height": image.camera["height"], "camera": image.camera,
             "timings": {"render_s": round(image.render_seconds, 4),
                         "encode_s": round(image.encode_seconds, 4),

@@ -53,6 +53,7 @@ class RenderedImage:
     render_seconds: float
     encode_seconds: float
     codes: object = None  # (h, w, 4) uint8 display codes when the task wants them
+    albedo: dict | None = None  # rendered and albedo luminance (shots.albedo.exposure_reading)
 
 
 @dataclass
@@ -281,6 +282,7 @@ def _prepared_variant(loaded: dict, variant: str, result: TaskResult):
 
 
 def _render_one(prepared, frame, task: RenderTask) -> RenderedImage:
+    from shots.albedo import exposure_reading
     from shots.colour import display_codes
     from shots.output import encode_png
     from shots.render import render_frame
@@ -291,11 +293,12 @@ def _render_one(prepared, frame, task: RenderTask) -> RenderedImage:
     codes = display_codes(rgba, frame.look.exposure, frame.look.tone_map, task.bits)
     png = encode_png(codes)
     exr = exr_bytes(rgba) if task.exr else None
+    albedo = exposure_reading(prepared, frame.camera, rgba, frame.look.exposure)
     return RenderedImage(
         shot=frame.shot, index=frame.index, view=frame.view, camera=frame.to_json(),
         seed=frame.seed, png=png, exr=exr, render_seconds=rendered - start,
         encode_seconds=time.perf_counter() - rendered,
-        codes=codes if task.wants_codes(frame.shot, frame.index) else None,
+        codes=codes if task.wants_codes(frame.shot, frame.index) else None, albedo=albedo,
     )
 
 
