@@ -12,7 +12,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from shots.gltf import checks
-from shots.text import literal
+from shots.terminal import visible
 
 if TYPE_CHECKING:
     from shots.gltf.container import Document
@@ -31,7 +31,7 @@ class Note(str):
     __slots__ = ("kind",)
 
     def __new__(cls, text: str, kind: str = WARNING) -> Note:
-        note = super().__new__(cls, literal(text))
+        note = super().__new__(cls, visible(text))
         note.kind = kind
         return note
 
