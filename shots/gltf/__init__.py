@@ -116,7 +116,7 @@ def _check_extensions(doc: Document) -> None:
     used = checks.array(gltf.extensionsUsed, src, "extensionsUsed")
     ignored = sorted(str(n) for n in used if str(n) not in SUPPORTED_EXTENSIONS)
     if ignored:
-        doc.ignore(f"extensions not supported, ignored: {', '.join(ignored)}")
+        doc.ignore(f"extensions ignored: {', '.join(ignored)}")
 
 
 def _variant_names(doc: Document) -> list[str]:
