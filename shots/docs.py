@@ -45,6 +45,8 @@ KEY_NOTES = {
     "Preset.description": "One line saying what the preset is for (listed below for built-ins).",
     "Preset.lights": "The light rig: one `[[lights]]` table per light.",
     "Preset.shots": "The shots to take: one `[[shots]]` table per shot.",
+    "Preset.derivatives": "Published versions of every frame: one `[[derivatives]]` table each.",
+    "Preset.publish": "Product table and copyright line for the derivatives.",
     "ImageSettings.width": "Image width in pixels.",
     "ImageSettings.height": "Image height in pixels.",
     "ImageSettings.seed": "Base of every frame's random numbers: the same seed gives the same "
@@ -317,6 +319,7 @@ def preset_reference() -> str:
         table = _strip(top.model_fields[key].annotation)
         lines += ["", f"#### `[{key}]`", "", *_model_block(table)]
     lines += ["", "#### `[[lights]]`", "", *_model_block(presets.RigLight)]
+    lines += ["", "#### `[[derivatives]]`", "", *_model_block(presets.Derivative)]
     lines += ["", *_shots_reference()]
     lines += ["", *builtin_presets_reference()]
     return "\n".join(lines)

@@ -348,6 +348,62 @@ SHOT_KINDS = {"views": ViewsShot, "turntable": TurntableShot, "orbit": OrbitShot
               "path": PathShot, "file_camera": FileCameraShot}
 
 
+DERIVATIVE_SUFFIXES = {"jpeg": (".jpg", ".jpeg"), "webp": (".webp",), "png": (".png",),
+                       "avif": (".avif",)}
+PixelBox = Annotated[tuple[Annotated[int, Ge(1), Le(16384)], Annotated[int, Ge(1), Le(16384)]],
+                     Strict(False)]
+
+
+class Derivative(Table):
+    """A published version of every frame (of ``shots``, default all): resized from the master
+    in linear light, flattened on ``background`` or kept transparent, and written to ``path``.
+
+    ``path`` is a template relative to the output folder with the fields ``{model}``,
+    ``{variant}``, ``{shot}``, ``{frame}``, ``{view}``, ``{size}`` (this file's pixel size),
+    ``{name}`` (this derivative's), and with a product table ``{sku}``, ``{title}`` and its
+    other columns; it ends with the format's file suffix.
+    """
+
+    name: ShotName  # names the derivative in manifests and the {name} field; unique
+    format: Literal[tuple(DERIVATIVE_SUFFIXES)]  # the file format (AVIF where Pillow has libavif)
+    path: str  # file path template, relative to the output folder (fields above)
+    longest_side: int | None = Field(None, ge=1, le=16384)  # the longer side in pixels (or give box)
+    box: PixelBox | None = None  # exact [width, height]; the frame is fitted and centred
+    background: DisplayColour | None = None  # flatten onto this sRGB colour; absent keeps alpha
+    quality: int = Field(85, ge=1, le=100)  # JPEG, WebP and AVIF encoder quality
+    lossless: bool = False  # lossless WebP (WebP only)
+    chroma: Literal["4:2:0", "4:4:4"] = "4:2:0"  # JPEG and AVIF chroma subsampling
+    shots: list[ShotName] | None = None  # the shots whose frames are published; absent: all
+
+    @model_validator(mode="after")
+    def _derivative(self) -> Derivative:
+        if (self.longest_side is None) == (self.box is None):
+            raise ValueError("give longest_side or box (one of them)")
+        if self.format == "jpeg" and self.background is None:
+            raise ValueError("JPEG has no alpha channel: give a background colour to flatten on")
+        suffixes = DERIVATIVE_SUFFIXES[self.format]
+        if not self.path.lower().endswith(suffixes):
+            raise ValueError(f"path must end with {' or '.join(suffixes)} for {self.format}")
+        if self.lossless and self.format != "webp":
+            raise ValueError("lossless applies to webp only")
+        if "chroma" in self.model_fields_set and self.format not in ("jpeg", "avif"):
+            raise ValueError("chroma applies to jpeg and avif only")
+        if self.format == "avif":
+            from PIL import features
+
+            if not features.check("avif"):
+                raise ValueError("this installation's Pillow cannot write AVIF (it was built "
+                                 "without libavif); use jpeg, webp or png")
+        return self
+
+
+class PublishSettings(Table):
+    """Catalog names and rights for the derivatives."""
+
+    products: str | None = None  # product table (CSV), relative to the preset that names it
+    copyright: str = Field("", max_length=200)  # written into every derivative's metadata
+
+
 class Preset(Table):
     """A validated preset. ``source`` is the file it came from; ``name`` its stem."""
 
@@ -360,6 +416,8 @@ class Preset(Table):
     ground: GroundSettings = GroundSettings()
     lights: list[RigLight] = Field(default_factory=list, max_length=32)
     shots: list[Shot] = Field(default_factory=list, max_length=256)
+    derivatives: list[Derivative] = Field(default_factory=list, max_length=32)
+    publish: PublishSettings = PublishSettings()
     _source: str = PrivateAttr("")
 
     @property
@@ -376,6 +434,24 @@ class Preset(Table):
         for index, name in enumerate(names):
             if name in names[:index]:
                 raise ValueError(f"shots[{index}].name: {name!r} is used by an earlier shot")
+        return self
+
+    @model_validator(mode="after")
+    def _derivatives_fit(self) -> Preset:
+        shot_names = [shot.name for shot in self.shots]
+        seen: dict[str, str] = {}
+        for index, derivative in enumerate(self.derivatives):
+            if derivative.name in seen:
+                raise ValueError(f"derivatives[{index}].name: {derivative.name!r} is used by "
+                                 f"an earlier derivative")
+            if derivative.path in seen.values():
+                raise ValueError(f"derivatives[{index}].path: {derivative.path!r} is the path "
+                                 f"of an earlier derivative; their files would collide")
+            seen[derivative.name] = derivative.path
+            unknown = [s for s in derivative.shots or () if s not in shot_names]
+            if unknown:
+                raise ValueError(f"derivatives[{index}].shots: no shot {unknown[0]!r} "
+                                 f"(shots: {', '.join(shot_names) or 'none'})")
         return self
 
     def with_image_size(self, width: int, height: int) -> Preset:
@@ -517,15 +593,17 @@ def _merge(base: dict, origins: dict, over: dict, over_origins: dict, prefix: tu
 
 
 def _resolve_files(data: dict, origins: dict) -> None:
-    """Make ``environment.image`` absolute, relative to the preset file that names it."""
-    environment = data.get("environment")
-    if not isinstance(environment, dict) or not isinstance(environment.get("image"), str):
-        return
-    source = Path(origins[("environment", "image")])
-    image = source.parent / environment["image"]
-    if not image.is_file():
-        raise PresetError(source, "environment.image", f"no such file {environment['image']!r}")
-    environment["image"] = str(image.resolve())
+    """Make ``environment.image`` and ``publish.products`` absolute, relative to the preset
+    file that names them."""
+    for table, key in (("environment", "image"), ("publish", "products")):
+        section = data.get(table)
+        if not isinstance(section, dict) or not isinstance(section.get(key), str):
+            continue
+        source = Path(origins[(table, key)])
+        target = source.parent / section[key]
+        if not target.is_file():
+            raise PresetError(source, f"{table}.{key}", f"no such file {section[key]!r}")
+        section[key] = str(target.resolve())
 
 
 # --- one-line messages from pydantic's errors -------------------------------------------------

@@ -24,17 +24,20 @@ from pathlib import Path
 import shots
 from shots.batch import encode, jobs, manifest
 from shots.batch.catalog import CatalogModel, find_models
-from shots.batch.jobs import DEFAULT_VARIANT, FrameId, ModelVariantJob, RenderTask
-from shots.batch.layout import CONTACT_SHEET, INDEX_CSV, INDEX_JSON, Layout
+from shots.batch.jobs import DEFAULT_VARIANT, DeriveTask, FrameId, ModelVariantJob, RenderTask
+from shots.batch.layout import CONTACT_SHEET, INDEX_CSV, INDEX_JSON, DerivativeTemplate, Layout
 from shots.batch.progress import Reporter
 from shots.batch.runner import WORKER_DIED, ProcessRunner, available_cores, make_runner
 from shots.batch.sheet import CELL, SheetCell, contact_sheet_bytes, thumbnail
-from shots.batch.worker import TaskResult, exr_available, probe_variants, render_task
+from shots.batch.worker import TaskResult, exr_available, probe_variants, run_task
 from shots.check.judge import Tolerances
 from shots.check.measure import measure_codes
+from shots.derivatives import canvas_size
 from shots.errors import BatchError
 from shots.output import atomic_write_bytes
-from shots.presets import OrbitShot, PathShot, Preset, TurntableShot, load_preset
+from shots.presets import OrbitShot, PathShot, Preset, TurntableShot, ViewsShot, load_preset
+from shots.products import ProductTable, load_products
+from shots.tags import ImageMetadata
 
 VARIANT_CHOICES = ("default", "all")
 LOCK_NAME = ".shots-batch.lock"
@@ -107,6 +110,10 @@ class ModelState:
     entries: dict[FrameId, dict] = field(default_factory=dict)
     pending: set[FrameId] = field(default_factory=set)
     animations: dict[tuple, dict] = field(default_factory=dict)
+    derived: dict[FrameId, list[dict]] = field(default_factory=dict)  # wanted derivatives
+    rederive: dict[FrameId, tuple[str, ...]] = field(default_factory=dict)  # stale, not re-render
+    metadata: dict[str, ImageMetadata] = field(default_factory=dict)  # per variant
+    products: dict[str, dict] = field(default_factory=dict)  # product table row per variant
     pictures: dict[FrameId, object] = field(default_factory=dict)  # 8-bit codes to animate
     warnings: set[str] = field(default_factory=set)
     hints: list[str] = field(default_factory=list)  # shots.hints, from the load or the manifest
@@ -247,6 +254,10 @@ class Batch:
         self.runner = None
         self.reporter: Reporter | None = None
         self._check_template()
+        self.products: ProductTable | None = (
+            load_products(preset.publish.products) if preset.publish.products else None
+        )
+        self.derivative_templates = self._derivative_templates()
 
     # --- set-up -------------------------------------------------------------------------------
 
@@ -278,6 +289,35 @@ class Batch:
             if needed and name not in fields:
                 raise BatchError("--template", self.layout.template,
                                  f"needs {{{name}}}: {why}")
+
+    def _derivative_templates(self) -> dict[str, DerivativeTemplate]:
+        """Check every derivative's path template now, so a bad one stops the batch before
+        anything renders: known fields only, inside the output folder, and enough fields to
+        tell this catalog's files apart."""
+        product_fields = self.products.fields if self.products else ()
+        templates = {}
+        for index, derivative in enumerate(self.preset.derivatives):
+            where = f"derivatives[{index}].path"
+            template = DerivativeTemplate.create(derivative.path, self.preset.source, where,
+                                                 product_fields)
+            used = set(template.used)
+            shots = derivative.shots or list(self.counts)
+            needs = [
+                ({"model", "sku"}, len(self.states) > 1, "the catalog has several models"),
+                ({"shot"}, len(shots) > 1, "it applies to several shots"),
+                ({"frame", "view"}, any(self.counts[s] > 1 for s in shots),
+                 "a shot has several frames"),
+                ({"variant", "sku"}, self.variant_choice == "all", "--variants all is given"),
+            ]
+            for names, needed, why in needs:
+                if needed and not used & names:
+                    either = " or ".join(f"{{{n}}}" for n in sorted(names))
+                    raise BatchError(self.preset.source, where,
+                                     f"{derivative.path!r} needs {either}: {why}")
+            sample = dict.fromkeys(template.fields, "x") | {"frame": 0}
+            self.layout.derivative_path(template, sample)  # escapes the output folder: refused
+            templates[derivative.name] = template
+        return templates
 
     def _lock(self):
         """Hold an exclusive lock on the output folder; the OS drops it even on SIGKILL."""
@@ -421,6 +461,8 @@ class Batch:
                 old_frames[FrameId(entry["variant"], entry["shot"], entry["frame"])] = entry
             except (KeyError, TypeError):
                 continue
+        if not self._find_products(state):
+            return
         paths = {}
         for variant in state.variants:
             for frame in jobs.frame_ids(self.preset, variant):
@@ -430,7 +472,11 @@ class Batch:
                 paths[frame] = path
                 state.keys[frame] = jobs.frame_key(state.inputs_sha256, self.preset_hash,
                                                    self.version, self.bits, frame)
-        clash = self._claim(state, list(paths.values()) + self._animation_paths(state))
+        for frame in state.planned:
+            state.derived[frame] = self._derivatives_of(state, frame)
+        derivative_paths = [d["path"] for wanted in state.derived.values() for d in wanted]
+        clash = self._claim(state, list(paths.values()) + self._animation_paths(state)
+                            + derivative_paths)
         if clash:
             self._fail(state, clash, state.planned)
             return
@@ -442,10 +488,71 @@ class Batch:
                 state.skipped += 1
                 self.reporter.frame("skipped", state.name, frame.variant, frame.shot,
                                     frame.index, paths[frame])
+                stale = self._stale_derivatives(state, frame, entry)
+                if stale:
+                    state.rederive[frame] = stale
+                    state.pending.add(frame)
+                else:
+                    entry["derivatives"] = state.derived[frame]
             else:
                 state.pending.add(frame)
         if not state.pending:
             self._finish(state)
+
+    def _find_products(self, state: ModelState) -> bool:
+        """Each variant's product table row and metadata; a missing row fails the model (it
+        is reported, not named after its file)."""
+        copyright = self.preset.publish.copyright
+        for variant in state.variants:
+            row = {}
+            if self.products is not None:
+                row = self.products.lookup(state.entry.listed_as, variant)
+                if row is None:
+                    self._fail(state, f"{state.entry.listed_as}: variant {variant!r} is not in "
+                                      f"the product table {self.products.path}", [])
+                    return False
+            state.products[variant] = row
+            state.metadata[variant] = ImageMetadata(
+                product_code=row.get("sku", ""), title=row.get("title", ""),
+                variant=variant if variant != DEFAULT_VARIANT else "", copyright=copyright)
+        return True
+
+    def _derivatives_of(self, state: ModelState, frame: FrameId) -> list[dict]:
+        """The derivatives wanted of a frame: name, format, path, size and key."""
+        wanted = []
+        width, height = self.preset.image.width, self.preset.image.height
+        metadata = state.metadata[frame.variant].as_dict()
+        for derivative in jobs.derivatives_for(tuple(self.preset.derivatives), frame.shot):
+            size = canvas_size(width, height, derivative.longest_side, derivative.box)
+            values = {**state.products[frame.variant], "model": state.name,
+                      "variant": frame.variant, "shot": frame.shot, "frame": frame.index,
+                      "view": self._view_name(frame), "size": f"{size[0]}x{size[1]}",
+                      "name": derivative.name}
+            wanted.append({
+                "name": derivative.name, "format": derivative.format,
+                "path": self.layout.derivative_path(self.derivative_templates[derivative.name],
+                                                    values),
+                "width": size[0], "height": size[1],
+                "key": jobs.derivative_key(state.keys[frame], derivative, metadata),
+            })
+        return wanted
+
+    def _view_name(self, frame: FrameId) -> str:
+        """A named view's name, else the frame number (three digits)."""
+        shot = next(s for s in self.preset.shots if s.name == frame.shot)
+        return shot.views[frame.index] if isinstance(shot, ViewsShot) else f"{frame.index:03d}"
+
+    def _stale_derivatives(self, state: ModelState, frame: FrameId, entry: dict) -> tuple:
+        """Names of the derivatives of an up-to-date frame that need making again."""
+        old = {d.get("name"): d for d in entry.get("derivatives") or [] if isinstance(d, dict)}
+        stale = []
+        for wanted in state.derived[frame]:
+            have = old.get(wanted["name"])
+            if (self.force or have is None or have.get("key") != wanted["key"]
+                    or have.get("path") != wanted["path"]
+                    or not self.layout.absolute(wanted["path"]).is_file()):
+                stale.append(wanted["name"])
+        return tuple(stale)
 
     def _animation_paths(self, state: ModelState) -> list[str]:
         return [
@@ -479,25 +586,39 @@ class Batch:
             return bool(exr) and self.layout.absolute(exr).is_file()
         return True
 
-    def _tasks(self) -> list[RenderTask]:
-        variant_jobs = []
+    def _tasks(self) -> list[RenderTask | DeriveTask]:
+        variant_jobs, derive = [], []
         for state in self.states:
             if state.error is not None or not state.pending:
                 continue
             for variant in state.variants:
                 pending = [f for f in state.planned if f in state.pending and f.variant == variant]
-                if pending:
+                render = [f for f in pending if f not in state.rederive]
+                if render:
                     variant_jobs.append(
-                        ModelVariantJob(state.key, state.inputs_sha256, variant, pending)
+                        ModelVariantJob(state.key, state.inputs_sha256, variant, render)
                     )
+                stale = [f for f in pending if f in state.rederive]
+                if stale:
+                    derive.append(self._derive_task(state, variant, stale))
         if not variant_jobs:
-            return []
+            return derive
         # chunks are cut for the runner's size: a cluster's threads, else the local workers
         workers = self._get_runner(sum(len(j.pending) for j in variant_jobs)).workers
+        metadata = {(s.key, v): m for s in self.states for v, m in s.metadata.items()}
         return jobs.chunk_tasks(variant_jobs, workers, self.preset, self.preset_hash, self.bits,
-                               self.exr, self.animated)
+                                self.exr, self.animated, metadata) + derive
 
-    def _render(self, tasks: list[RenderTask]) -> None:
+    def _derive_task(self, state: ModelState, variant: str, frames: list[FrameId]) -> DeriveTask:
+        """Re-make stale derivatives from the masters on disk (read here: a cluster's workers
+        may not see the output folder)."""
+        return DeriveTask(
+            state.key, variant,
+            tuple((f.shot, f.index, self.layout.absolute(state.paths[f]).read_bytes(),
+                   state.rederive[f]) for f in frames),
+            tuple(self.preset.derivatives), state.metadata[variant])
+
+    def _render(self, tasks: list[RenderTask | DeriveTask]) -> None:
         if not tasks:
             return
         runner = self._get_runner(sum(len(t.frames) for t in tasks))
@@ -512,7 +633,7 @@ class Batch:
                 if state.error is not None:
                     self._fail(state, state.error, self._frames_of(task))
                     continue
-                in_flight[runner.submit(render_task, task)] = task
+                in_flight[runner.submit(run_task, task)] = task
             if not in_flight:
                 break
             done, _ = runner.wait_any(set(in_flight))
@@ -527,10 +648,10 @@ class Batch:
                 self._take(task, result)
 
     @staticmethod
-    def _frames_of(task: RenderTask) -> list[FrameId]:
-        return [FrameId(task.variant, shot, index) for shot, index in task.frames]
+    def _frames_of(task: RenderTask | DeriveTask) -> list[FrameId]:
+        return [FrameId(task.variant, frame[0], frame[1]) for frame in task.frames]
 
-    def _take(self, task: RenderTask, result: TaskResult) -> None:
+    def _take(self, task: RenderTask | DeriveTask, result: TaskResult) -> None:
         """Write a finished chunk's files, then the model's manifest."""
         state = self.by_key[task.model]
         state.add_time("load_s", result.load_seconds)
@@ -545,6 +666,10 @@ class Batch:
             return
         for image in result.images:
             frame = FrameId(task.variant, image.shot, image.index)
+            if image.png is None:  # derivatives re-made; the master was up to date
+                self._write_derivatives(state, frame, image)
+                state.pending.discard(frame)
+                continue
             start = time.perf_counter()
             path = state.paths[frame]
             atomic_write_bytes(self.layout.absolute(path), image.png)
@@ -557,6 +682,7 @@ class Batch:
                 self._keep_codes(state, frame, self.layout.absolute(path), image.codes)
             state.entries[frame] = self._frame_entry(state, frame, image, path, exr_path,
                                                      write_seconds)
+            self._write_derivatives(state, frame, image)
             state.pending.discard(frame)
             state.rendered += 1
             state.add_time("render_s", image.render_seconds)
@@ -568,6 +694,18 @@ class Batch:
             self._write_manifest(state)
         if not state.pending:
             self._finish(state)
+
+    def _write_derivatives(self, state: ModelState, frame: FrameId, image) -> None:
+        """Write the derivatives a worker made of a frame and list them in its entry."""
+        start = time.perf_counter()
+        for wanted in state.derived[frame]:
+            data = image.derivatives.get(wanted["name"])
+            if data is not None:
+                atomic_write_bytes(self.layout.absolute(wanted["path"]), data)
+        state.entries[frame]["derivatives"] = state.derived[frame]
+        state.rederive.pop(frame, None)
+        state.add_time("derive_s", image.derive_seconds)
+        state.add_time("write_s", time.perf_counter() - start)
 
     def _moves(self, state: ModelState) -> bool:
         """Whether the model has animations to make once its frames are in."""
@@ -706,6 +844,7 @@ class Batch:
                          "animations": list(self.animations), "fps": self.fps},
             "variants": state.available or [],
             "rendered_variants": state.variants,
+            "products": state.products if self.products is not None else None,
             "warnings": sorted(state.warnings),
             "hints": sorted(state.hints),
         }
@@ -737,7 +876,7 @@ class Batch:
                 entry = state.entries[frame]
                 frames.append({"model": state.name, **{k: entry[k] for k in (
                     "variant", "shot", "frame", "view", "path", "exr", "key", "seed", "width",
-                    "height")}})
+                    "height")}, "derivatives": entry.get("derivatives") or []})
             for key in sorted(state.animations):
                 animations.append({"model": state.name, **state.animations[key]})
         header = {

@@ -1,0 +1,270 @@
+"""Publish-ready batches: derivatives named by product code, made once per frame and again only
+when their settings change; the product table; bad publishing input refused before rendering;
+turntable videos converted and tagged as BT.709."""
+
+import io
+import json
+import shutil
+import subprocess
+from pathlib import Path
+
+import imageio_ffmpeg
+import numpy as np
+import pytest
+from PIL import Image
+from typer.testing import CliRunner
+
+from shots.batch import run_batch
+from shots.batch.encode import mp4_bytes
+from shots.cli import app
+from shots.errors import BatchError, PresetError
+from shots.products import load_products
+
+HERE = Path(__file__).parent
+SAMPLES = HERE / "data" / "samples"
+DEMO = HERE.parent / "assets_demo"
+
+PRESET = """
+extends = "thumbnail"
+[image]
+width = 64
+height = 48
+samples = 1
+light_samples = 1
+gloss_samples = 1
+bounces = 1
+[publish]
+products = "products.csv"
+copyright = "© 2026 Tavlund Verkstad"
+[[shots]]
+name = "hero"
+kind = "views"
+views = ["front_left", "front"]
+[[derivatives]]
+name = "web"
+format = "jpeg"
+longest_side = 32
+background = [1.0, 1.0, 1.0]
+quality = 88
+path = "web/{sku}_{view}.jpg"
+[[derivatives]]
+name = "square"
+format = "webp"
+box = [40, 40]
+path = "square/{range}/{sku}_{view}.webp"
+"""
+PRODUCTS = """model,variant,sku,title,range
+Box,,TV-0001,Sample box,misc
+tavlund_ekra_chair.glb,default,TV-1101,Ekra dining chair,dining
+"""
+
+
+def make_catalog(root: Path, preset: str = PRESET, products: str = PRODUCTS) -> tuple:
+    catalog = root / "catalog"
+    catalog.mkdir(parents=True)
+    shutil.copy(SAMPLES / "Box.gltf", catalog)
+    shutil.copy(DEMO / "tavlund_ekra_chair.glb", catalog)
+    (root / "products.csv").write_text(products, encoding="utf-8")
+    path = root / "publish.toml"
+    path.write_text(preset, encoding="utf-8")
+    return catalog, path
+
+
+def batch(catalog, preset, out, log=None):
+    return run_batch(catalog, preset, out, quiet=True, workers=1, animations=(),
+                     log_json=log)
+
+
+def rendered_frames(log: Path) -> int:
+    lines = [json.loads(line) for line in log.read_text().splitlines()]
+    return sum(1 for e in lines if e["event"] == "frame" and e["status"] == "rendered")
+
+
+@pytest.fixture(scope="module")
+def published(tmp_path_factory):
+    root = tmp_path_factory.mktemp("publish")
+    catalog, preset = make_catalog(root)
+    out = root / "out"
+    summary = batch(catalog, preset, out)
+    return {"root": root, "catalog": catalog, "preset": preset, "out": out, "summary": summary}
+
+
+def test_derivatives_are_named_by_product_code(published):
+    out = published["out"]
+    assert published["summary"].exit_code == 0
+    names = sorted(p.relative_to(out).as_posix() for p in out.glob("*/**/*.*")
+                   if p.parts[-3] in ("web", "square") or p.parent.name in ("web",))
+    assert names == [
+        "square/dining/TV-1101_front.webp", "square/dining/TV-1101_front_left.webp",
+        "square/misc/TV-0001_front.webp", "square/misc/TV-0001_front_left.webp",
+        "web/TV-0001_front.jpg", "web/TV-0001_front_left.jpg",
+        "web/TV-1101_front.jpg", "web/TV-1101_front_left.jpg",
+    ]
+
+
+def test_derivative_sizes_tags_and_metadata(published):
+    out = published["out"]
+    jpeg = Image.open(out / "web/TV-1101_front_left.jpg")
+    assert jpeg.size == (32, 24) and jpeg.mode == "RGB"  # 64 × 48, longest side 32
+    assert jpeg.info.get("icc_profile")
+    assert b"TV-1101" in jpeg.info["xmp"] and b"Ekra dining chair" in jpeg.info["xmp"]
+    webp = Image.open(out / "square/dining/TV-1101_front_left.webp")
+    assert webp.size == (40, 40) and webp.mode == "RGBA"  # box kept transparent
+    alpha = np.asarray(webp)[..., 3]
+    assert alpha[0].max() == 0 and alpha[-1].max() == 0  # 40 × 30 picture, centred
+    master = Image.open(out / "tavlund_ekra_chair/default/hero/000.png")
+    assert master.info.get("srgb") == 0  # PNG spec §11.3.3.5
+
+
+def test_manifest_and_index_list_the_derivatives(published):
+    out = published["out"]
+    manifest = json.loads((out / "manifests/tavlund_ekra_chair.json").read_text())
+    assert manifest["products"]["default"]["sku"] == "TV-1101"
+    first = manifest["frames"][0]["derivatives"]
+    assert [d["name"] for d in first] == ["web", "square"]
+    index = (out / "index.csv").read_text()
+    assert "jpeg:web,web/TV-1101_front_left.jpg" in index.replace('"', "")
+
+
+def test_derivatives_from_memory_equal_those_from_the_master_file(published, tmp_path):
+    out = tmp_path / "out"
+    shutil.copytree(published["out"], out)
+    target = out / "web/TV-0001_front.jpg"
+    original = target.read_bytes()
+    target.unlink()
+    log = tmp_path / "log.jsonl"
+    batch(published["catalog"], published["preset"], out, log)
+    assert rendered_frames(log) == 0
+    assert target.read_bytes() == original
+
+
+def test_changed_derivative_settings_remake_derivatives_not_frames(published, tmp_path):
+    out = tmp_path / "out"
+    shutil.copytree(published["out"], out)
+    preset = published["root"] / "publish-q60.toml"
+    preset.write_text(PRESET.replace("quality = 88", "quality = 60"), encoding="utf-8")
+    masters = {p: p.read_bytes() for p in out.rglob("hero/*.png")}
+    webp = (out / "square/misc/TV-0001_front.webp").read_bytes()
+    jpeg = (out / "web/TV-0001_front.jpg").read_bytes()
+    log = tmp_path / "log.jsonl"
+    batch(published["catalog"], preset, out, log)
+    assert rendered_frames(log) == 0
+    assert all(p.read_bytes() == data for p, data in masters.items())
+    assert (out / "web/TV-0001_front.jpg").read_bytes() != jpeg
+    assert (out / "square/misc/TV-0001_front.webp").read_bytes() == webp
+
+
+def test_a_model_missing_from_the_product_table_is_reported(tmp_path):
+    catalog, preset = make_catalog(tmp_path, products=PRODUCTS.splitlines()[0] + "\n"
+                                   + PRODUCTS.splitlines()[1] + "\n")
+    summary = batch(catalog, preset, tmp_path / "out")
+    assert summary.exit_code == 1
+    [(model, reason)] = summary.failures
+    assert model == "tavlund_ekra_chair.glb"
+    assert "variant 'default' is not in the product table" in reason
+    assert not (tmp_path / "out/web/tavlund_ekra_chair_front.jpg").exists()
+    assert (tmp_path / "out/web/TV-0001_front.jpg").is_file()
+
+
+@pytest.mark.parametrize(("path", "words"), [
+    ("../web/{sku}_{view}.jpg", "leaves the output folder"),
+    ("web/{view}.jpg", "needs {model} or {sku}: the catalog has several models"),
+    ("web/{sku}.jpg", "needs {frame} or {view}"),
+    ("web/{sku}_{view}_{colour}.jpg", "unknown field {colour}"),
+    ("web/{sku}_{view}.jpg.png", "must end with .jpg or .jpeg"),
+])
+def test_bad_templates_stop_the_batch_before_rendering(tmp_path, path, words):
+    catalog, preset = make_catalog(tmp_path, PRESET.replace('"web/{sku}_{view}.jpg"',
+                                                            json.dumps(path)))
+    with pytest.raises((BatchError, PresetError)) as caught:
+        batch(catalog, preset, tmp_path / "out")
+    message = str(caught.value)
+    assert message.startswith(str(preset)) and "derivatives[0]" in message, message
+    assert words in message, message
+    assert not list((tmp_path / "out").rglob("*.png"))
+
+
+def test_cli_refuses_duplicate_product_codes_on_one_line(tmp_path):
+    products = PRODUCTS.replace("TV-1101", "TV-0001")
+    catalog, preset = make_catalog(tmp_path, products=products)
+    result = CliRunner().invoke(app, ["batch", str(catalog), "-p", str(preset),
+                                      "-o", str(tmp_path / "out"), "-q"])
+    assert result.exit_code == 2
+    lines = result.output.strip().splitlines()
+    assert len(lines) == 1, result.output
+    assert "products.csv: line 3, sku: 'TV-0001' is already the code of line 2" in lines[0]
+    assert not (tmp_path / "out").exists() or not list((tmp_path / "out").rglob("*.png"))
+
+
+def test_product_columns_without_a_table_are_refused(tmp_path):
+    text = PRESET.replace('products = "products.csv"\n', "")
+    catalog, preset = make_catalog(tmp_path, text)
+    with pytest.raises(BatchError, match=r"unknown field \{sku\}.*need \[publish\] products"):
+        batch(catalog, preset, tmp_path / "out")
+
+
+@pytest.mark.parametrize(("text", "where", "words"), [
+    ("sku,title\nA,a\n", "line 1", "needs the column(s) model"),
+    ("model,sku,title\nm,A,a\nm,B,b\n", "line 3, model", "listed twice"),
+    ("model,sku,title\nm,,a\n", "line 2, sku", "is empty"),
+    ("model,sku,title,Shelf Width\nm,A,a,1\n", "line 1", "lower-case"),
+    ("model,sku,title,shot\nm,A,a,1\n", "line 1", "shadow"),
+])
+def test_broken_product_tables_name_line_and_column(tmp_path, text, where, words):
+    path = tmp_path / "products.csv"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(PresetError) as caught:
+        load_products(path)
+    assert str(caught.value).startswith(f"{path}: {where}: ") and words in str(caught.value)
+
+
+def test_product_rows_are_found_by_file_name_or_stem(tmp_path):
+    path = tmp_path / "products.csv"
+    path.write_text(PRODUCTS, encoding="utf-8")
+    table = load_products(path)
+    assert table.lookup("Box.gltf", "default")["sku"] == "TV-0001"
+    assert table.lookup("sub/tavlund_ekra_chair.glb", "default")["sku"] == "TV-1101"
+    assert table.lookup("Box.gltf", "oak") is None
+    assert table.fields == ("sku", "title", "range")
+
+
+# --- video ------------------------------------------------------------------------------------
+
+
+def probe(data: bytes, tmp_path: Path) -> tuple[str, np.ndarray]:
+    """ffmpeg's stream line for an MP4, and its first frame as raw 8-bit Y'CbCr 4:2:0 planes."""
+    path = tmp_path / "clip.mp4"
+    path.write_bytes(data)
+    ffmpeg = imageio_ffmpeg.get_ffmpeg_exe()
+    info = subprocess.run([ffmpeg, "-hide_banner", "-i", str(path)], capture_output=True,
+                          text=True).stderr
+    stream = next(line for line in info.splitlines() if "Video:" in line)
+    raw = subprocess.run([ffmpeg, "-v", "error", "-i", str(path), "-frames:v", "1", "-f",
+                          "rawvideo", "-pix_fmt", "yuv420p", "-"], capture_output=True).stdout
+    return stream, np.frombuffer(raw, np.uint8)
+
+
+def test_turntable_video_is_bt709_converted_and_tagged(tmp_path):
+    colour = np.array([200, 40, 30])
+    frames = [np.broadcast_to(colour.astype(np.uint8), (32, 48, 3)).copy()] * 3
+    stream, raw = probe(mp4_bytes(frames, 12.0, (1.0, 1.0, 1.0)), tmp_path)
+    # range tv, colour space (matrix) bt709, primaries and transfer bt709: ffmpeg prints one
+    # "bt709" when all three agree
+    assert "yuv420p(tv, bt709" in stream, stream
+    # ITU-R BT.709-6 item 3.2 luma and 3.3 colour differences, limited range (item 4.6):
+    # Y' = 16 + 219·(0.2126 R' + 0.7152 G' + 0.0722 B'); BT.601 weights would give Y' = 90
+    r, g, b = colour / 255.0
+    luma = 0.2126 * r + 0.7152 * g + 0.0722 * b
+    expected = (16 + 219 * luma, 128 + 224 * (b - luma) / 1.8556,
+                128 + 224 * (r - luma) / 1.5748)
+    plane = 32 * 48
+    measured = (raw[plane // 2 + 24], raw[plane + plane // 8], raw[plane + plane // 4 + 100])
+    assert np.allclose(measured, expected, atol=1.5), (measured, expected)
+
+
+def test_animated_webp_carries_an_srgb_profile():
+    from shots.batch.encode import webp_bytes
+
+    frames = [np.zeros((8, 8, 4), np.uint8)] * 2
+    image = Image.open(io.BytesIO(webp_bytes(frames, 12.0)))
+    assert image.info.get("icc_profile")
