@@ -205,6 +205,50 @@ def thumbnails_in(folder: Path, shot: str | None) -> list[Path]:
     return [p for p in found if shot in p.relative_to(folder).parts or p.stem.startswith(shot)]
 
 
+preset_app = typer.Typer(no_args_is_help=True,
+                         help="Look at presets: resolved, or the format's JSON Schema.")
+app.add_typer(preset_app, name="preset")
+
+
+@preset_app.command("show")
+def preset_show(
+    preset: Annotated[str, typer.Argument(help="Built-in preset name or a TOML preset file.")],
+    model: Annotated[Path | None, typer.Option(
+        "--model", help="Merge this model's sidecar (MODEL.shots.toml) over the preset.")] = None,
+) -> None:
+    """Print a preset as TOML with `extends` (and a model's sidecar) resolved."""
+    from shots.presets import load_preset, resolved_toml, sidecar_for
+
+    sidecar = sidecar_for(model) if model is not None else None
+    if sidecar is not None and not sidecar.is_file():
+        warn(f"{model}: no sidecar {sidecar.name}; showing the preset alone")
+        sidecar = None
+    try:
+        sys.stdout.write(resolved_toml(load_preset(preset, sidecar), sidecar))
+    except ShotsError as exc:
+        fail(str(exc))
+
+
+@preset_app.command("schema")
+def preset_schema(
+    output: Annotated[Path | None, typer.Option(
+        "--output", "-o", help="Write the schema to this file (default: print it).")] = None,
+) -> None:
+    """Write the preset format as a JSON Schema, for editors that complete and check TOML."""
+    from shots.output import atomic_write_bytes
+    from shots.presets import json_schema
+
+    text = json.dumps(json_schema(), indent=2) + "\n"
+    if output is None:
+        sys.stdout.write(text)
+        return
+    try:
+        atomic_write_bytes(output, text.encode())
+    except ShotsError as exc:
+        fail(str(exc))
+    out.print(f"wrote {output}", highlight=False)
+
+
 def fmt3(values) -> str:
     return "(" + ", ".join(f"{v:.3f}" for v in values) + ")"
 

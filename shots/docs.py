@@ -199,12 +199,21 @@ def cli_reference() -> str:
         "`shots --help` lists the commands and `shots COMMAND --help` shows one of them; the "
         "same text, generated from the code, follows.",
     ]
+    for name, command in _commands(group, context):
+        lines += ["", *command_reference(name, command)]
+    return "\n".join(lines)
+
+
+def _commands(group, context, prefix: str = ""):
+    """(name, command) of every visible command, a sub-group's as "group sub"."""
     for name in group.list_commands(context):
         command = group.get_command(context, name)
         if command is None or command.hidden:
             continue
-        lines += ["", *command_reference(name, command)]
-    return "\n".join(lines)
+        if hasattr(command, "list_commands"):  # a group of commands (`shots preset ...`)
+            yield from _commands(command, context, f"{prefix}{name} ")
+        else:
+            yield f"{prefix}{name}", command
 
 
 def command_reference(name: str, command) -> list[str]:

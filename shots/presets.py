@@ -23,6 +23,7 @@ from __future__ import annotations
 import difflib
 import importlib.resources
 import math
+import re
 import tomllib
 import types
 import typing
@@ -483,12 +484,27 @@ def builtin_preset_names() -> list[str]:
     return sorted(path.stem for path in builtin_folder().glob("*.toml"))
 
 
-def load_preset(name_or_path: str | Path) -> Preset:
-    """Read, merge (``extends``) and validate a preset.
+SIDECAR_SUFFIX = ".shots.toml"
+# What a sidecar may not change: the batch's files and their names stay the house's.
+SIDECAR_FIXED = ("derivatives", "publish")
+
+
+def sidecar_for(model: str | Path) -> Path:
+    """Where a model's own preset exceptions would be: ``chair.glb`` → ``chair.shots.toml``."""
+    model = Path(model)
+    return model.with_name(model.stem + SIDECAR_SUFFIX)
+
+
+def load_preset(name_or_path: str | Path, sidecar: str | Path | None = None) -> Preset:
+    """Read, merge (``extends``) and validate a preset, with a model's sidecar merged over it.
 
     Parameters
     ----------
     name_or_path : a built-in preset name ("thumbnail") or the path of a TOML file.
+    sidecar : a model's ``<model>.shots.toml`` (same schema, no ``extends``): its keys are
+        merged over the preset's. ``derivatives``, ``publish`` and the image size stay the
+        batch's, and its ``shots`` (a longer lens, another elevation) keep the batch's shot
+        names, kinds and frame counts, so every model's files are the same set.
 
     Raises
     ------
@@ -496,6 +512,9 @@ def load_preset(name_or_path: str | Path) -> Preset:
     """
     path = _locate(name_or_path)
     data, origins = _read_merged(path, ())
+    if sidecar is not None:
+        base = load_preset(path)
+        _merge_sidecar(Path(sidecar), data, origins)
     _resolve_files(data, origins)
     try:
         preset = Preset.model_validate(data)
@@ -503,7 +522,67 @@ def load_preset(name_or_path: str | Path) -> Preset:
         field, message = _first_problem(exc)
         raise PresetError(_origin(origins, exc, path), field, message) from None
     preset._source = str(path)
+    if sidecar is not None:
+        _same_shots(Path(sidecar), base, preset)
     return preset
+
+
+def _same_shots(sidecar: Path, base: Preset, merged: Preset) -> None:
+    def outline(preset: Preset) -> list[tuple[str, str, int]]:
+        return [(shot.name, shot.kind, len(shot.views) if isinstance(shot, ViewsShot)
+                 else getattr(shot, "frames", 1)) for shot in preset.shots]
+
+    for index, (ours, theirs) in enumerate(zip(outline(base), outline(merged), strict=False)):
+        if ours != theirs:
+            raise PresetError(sidecar, f"shots[{index}]", f"must keep the preset's shot "
+                                                          f"{ours[0]!r} ({ours[1]}, {ours[2]} "
+                                                          f"frame(s)); only its settings change")
+    if len(base.shots) != len(merged.shots):
+        raise PresetError(sidecar, "shots", f"must keep the preset's {len(base.shots)} shot(s)")
+
+
+def resolved_toml(preset: Preset, sidecar: Path | None = None) -> str:
+    """The preset as one TOML document with ``extends`` (and ``sidecar``) merged in: every key
+    some file set, none of the defaults, so loading it gives the same preset."""
+    import tomli_w
+
+    data = preset.model_dump(mode="json", exclude_unset=True)
+    if "shots" in data:  # a shot's name and kind first, as people write them
+        data["shots"] = [{"name": s.pop("name"), "kind": s.pop("kind"), **s}
+                         for s in data["shots"]]
+    text = tomli_w.dumps(data)
+    # tomli-w puts each array item on a line of its own; colours and sizes read better inline
+    text = re.sub(r"\[\n((?: {4}[^\[\]{}\n]+,\n)+)\]",
+                  lambda m: "[" + " ".join(m.group(1).split()).rstrip(",") + "]", text)
+    where = f"{preset.source}" + (f" with the sidecar {sidecar}" if sidecar else "")
+    return f"# {where}, extends merged\n{text}"
+
+
+def json_schema() -> dict:
+    """A JSON Schema (draft 2020-12, pydantic's) of the preset format, for editors."""
+    schema = Preset.model_json_schema()
+    schema["properties"]["extends"] = {
+        "description": "Presets to start from: a built-in name or a path relative to this "
+                       "file, or an array of them merged in order.",
+        "anyOf": [{"type": "string"}, {"type": "array", "items": {"type": "string"}}],
+    }
+    schema["$schema"] = "https://json-schema.org/draft/2020-12/schema"
+    schema["title"] = "shots preset"
+    return schema
+
+
+def _merge_sidecar(sidecar: Path, data: dict, origins: dict) -> None:
+    own = _read_toml(sidecar)
+    for key in ("extends", *SIDECAR_FIXED):
+        if key in own:
+            raise PresetError(sidecar, key, "a sidecar cannot set this: it changes the batch's "
+                                            "files for every model (set it in the preset)")
+    image = own.get("image")
+    for key in ("width", "height"):
+        if isinstance(image, dict) and key in image:
+            raise PresetError(sidecar, f"image.{key}", "a sidecar cannot change the image "
+                                                       "size (the catalog's files share it)")
+    _merge(data, origins, own, _origins_of(own, str(sidecar), ()), ())
 
 
 def _locate(name_or_path: str | Path) -> Path:

@@ -268,3 +268,19 @@ def test_animated_webp_carries_an_srgb_profile():
     frames = [np.zeros((8, 8, 4), np.uint8)] * 2
     image = Image.open(io.BytesIO(webp_bytes(frames, 12.0)))
     assert image.info.get("icc_profile")
+
+
+def test_demo_product_table_matches_the_demo_catalog():
+    # the demo's storefront names come from presets/demo-products.csv; the catalog description
+    # shipped with the models (assets_demo/catalog.json) must agree on every code and variant
+    from shots.presets import builtin_folder
+
+    table = load_products(builtin_folder() / "demo-products.csv")
+    catalog = json.loads((DEMO / "catalog.json").read_text())
+    for product in catalog["products"]:
+        row = table.lookup(product["file"], "default")
+        assert row is not None and row["sku"] == product["sku"], product["file"]
+        assert row["title"] == product["name"]
+        for variant in product["variants"]:
+            assert table.lookup(product["file"], variant)["sku"].startswith(product["sku"])
+    assert {Path(m).stem for m, _ in table.rows} == {p.stem for p in DEMO.glob("*.glb")}

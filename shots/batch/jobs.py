@@ -225,6 +225,8 @@ class ModelVariantJob:
     inputs_sha256: str
     variant: str
     pending: list[FrameId] = field(default_factory=list)
+    preset: Preset | None = None  # the model's own (a sidecar merged in), else the batch's
+    preset_sha256: str = ""
 
 
 def chunk_tasks(jobs: list[ModelVariantJob], workers: int, preset: Preset, preset_hash: str,
@@ -253,7 +255,8 @@ def chunk_tasks(jobs: list[ModelVariantJob], workers: int, preset: Preset, prese
                 stop = start + math.ceil((stop - start) / pieces)
             frames = tuple((f.shot, f.index) for f in job.pending[start:stop])
             tasks.append(
-                RenderTask(job.model, job.inputs_sha256, job.variant, frames, preset, preset_hash,
+                RenderTask(job.model, job.inputs_sha256, job.variant, frames,
+                           job.preset or preset, job.preset_sha256 or preset_hash,
                            bits, exr, animated, tuple(preset.derivatives),
                            (metadata or {}).get((job.model, job.variant), NO_METADATA))
             )

@@ -35,7 +35,15 @@ from shots.check.measure import measure_codes
 from shots.derivatives import canvas_size
 from shots.errors import BatchError
 from shots.output import atomic_write_bytes
-from shots.presets import OrbitShot, PathShot, Preset, TurntableShot, ViewsShot, load_preset
+from shots.presets import (
+    OrbitShot,
+    PathShot,
+    Preset,
+    TurntableShot,
+    ViewsShot,
+    load_preset,
+    sidecar_for,
+)
 from shots.products import ProductTable, load_products
 from shots.tags import ImageMetadata
 
@@ -99,6 +107,9 @@ class ModelState:
     """Everything the batch knows about one model while it runs."""
 
     entry: CatalogModel
+    preset: Preset | None = None  # the batch's, or with the model's sidecar merged over it
+    preset_hash: str = ""
+    sidecar: dict | None = None  # the sidecar that applied: its file and SHA-256
     file_sha256: str = ""
     inputs_sha256: str = ""
     old: dict | None = None
@@ -247,7 +258,8 @@ class Batch:
         # first frames measured and shrunk as they arrive, so the end of the run reads no PNG
         self.measured: dict[Path, object] = {}
         self.thumbnails: dict[Path, object] = {}
-        self.states = [ModelState(entry) for entry in models]
+        self.states = [self._with_sidecar(ModelState(entry, preset, self.preset_hash))
+                       for entry in models]
         self.by_key = {state.key: state for state in self.states}
         self.owners: dict[str, str] = {}  # output path → model that writes it
         self.animations_written = 0
@@ -289,6 +301,19 @@ class Batch:
             if needed and name not in fields:
                 raise BatchError("--template", self.layout.template,
                                  f"needs {{{name}}}: {why}")
+
+    def _with_sidecar(self, state: ModelState) -> ModelState:
+        """Merge the model's ``<model>.shots.toml`` over the preset, if it has one; a broken
+        sidecar stops the batch here, before anything renders."""
+        sidecar = sidecar_for(state.entry.path)
+        if not sidecar.is_file():
+            return state
+        if not self.preset.source:
+            raise BatchError(sidecar, None, "a sidecar needs the batch preset as a file or name")
+        state.preset = load_preset(self.preset.source, sidecar)
+        state.preset_hash = jobs.preset_sha256(state.preset)
+        state.sidecar = {"file": sidecar.name, "sha256": jobs.sha256_file(sidecar)}
+        return state
 
     def _derivative_templates(self) -> dict[str, DerivativeTemplate]:
         """Check every derivative's path template now, so a bad one stops the batch before
@@ -420,7 +445,7 @@ class Batch:
             if isinstance(old.get("variants"), list):
                 state.available = [str(v) for v in old["variants"]]
             state.warnings.update(str(w) for w in old.get("warnings", []))
-            if old.get("preset_sha256") == self.preset_hash and isinstance(old.get("hints"), list):
+            if old.get("preset_sha256") == state.preset_hash and isinstance(old.get("hints"), list):
                 state.hints = [str(h) for h in old["hints"]]
         if self.variant_choice == "default":
             state.variants = [DEFAULT_VARIANT]
@@ -433,8 +458,8 @@ class Batch:
         if not unknown:
             return
         runner = self._get_runner(self._frame_total())
-        futures = {runner.submit(probe_variants, s.key, s.inputs_sha256, self.preset,
-                                 self.preset_hash): s
+        futures = {runner.submit(probe_variants, s.key, s.inputs_sha256, s.preset,
+                                 s.preset_hash): s
                    for s in unknown}
         pending = set(futures)
         while pending:
@@ -470,7 +495,7 @@ class Batch:
                 path = self.layout.frame_path(state.name, variant, frame.shot, frame.index,
                                               self.size)
                 paths[frame] = path
-                state.keys[frame] = jobs.frame_key(state.inputs_sha256, self.preset_hash,
+                state.keys[frame] = jobs.frame_key(state.inputs_sha256, state.preset_hash,
                                                    self.version, self.bits, frame)
         for frame in state.planned:
             state.derived[frame] = self._derivatives_of(state, frame)
@@ -595,9 +620,8 @@ class Batch:
                 pending = [f for f in state.planned if f in state.pending and f.variant == variant]
                 render = [f for f in pending if f not in state.rederive]
                 if render:
-                    variant_jobs.append(
-                        ModelVariantJob(state.key, state.inputs_sha256, variant, render)
-                    )
+                    variant_jobs.append(ModelVariantJob(state.key, state.inputs_sha256, variant,
+                                                        render, state.preset, state.preset_hash))
                 stale = [f for f in pending if f in state.rederive]
                 if stale:
                     derive.append(self._derive_task(state, variant, stale))
@@ -838,7 +862,8 @@ class Batch:
             "sha256": state.file_sha256,
             "inputs_sha256": state.inputs_sha256,
             "preset": self.preset.name,
-            "preset_sha256": self.preset_hash,
+            "preset_sha256": state.preset_hash,
+            "sidecar": state.sidecar,
             "renderer_version": self.version,
             "settings": {"bits": self.bits, "exr": self.exr, "template": self.layout.template,
                          "animations": list(self.animations), "fps": self.fps},
