@@ -29,10 +29,18 @@ def readme() -> str:
 
 
 def cli_commands() -> dict:
-    """The click commands of the typer app, by name."""
+    """The click commands of the typer app, by name; a group's as "group command"."""
     group = typer.main.get_command(app)
     context = group.context_class(group, info_name="shots")
-    return {name: group.get_command(context, name) for name in group.list_commands(context)}
+    commands = {}
+    for name in group.list_commands(context):
+        command = group.get_command(context, name)
+        if hasattr(command, "list_commands"):  # a group such as `shots preset`
+            commands.update({f"{name} {sub}": command.get_command(context, sub)
+                             for sub in command.list_commands(context)})
+        else:
+            commands[name] = command
+    return commands
 
 
 def section(text: str, heading: str) -> str:
@@ -61,6 +69,8 @@ def shots_invocations(text: str) -> list[list[str]]:
 def check_invocation(words: list[str], commands: dict) -> None:
     assert len(words) > 1, f"'{' '.join(words)}' names no command"
     name = words[1]
+    if len(words) > 2 and f"{name} {words[2]}" in commands:  # a group's command
+        name, words = f"{name} {words[2]}", [words[0], f"{name} {words[2]}", *words[3:]]
     assert name in commands, f"'{' '.join(words)}': shots has no command {name!r} " \
                              f"(commands: {', '.join(commands)})"
     known = {"--help"}

@@ -284,3 +284,62 @@ def test_demo_product_table_matches_the_demo_catalog():
         for variant in product["variants"]:
             assert table.lookup(product["file"], variant)["sku"].startswith(product["sku"])
     assert {Path(m).stem for m, _ in table.rows} == {p.stem for p in DEMO.glob("*.glb")}
+
+
+def test_dry_run_counts_what_a_run_then_does_and_writes_nothing(published, tmp_path):
+    from shots.batch.preview import preview_batch
+
+    fresh = preview_batch(published["catalog"], published["preset"], tmp_path / "new",
+                          workers=1, animations=())
+    assert not (tmp_path / "new").exists()
+    assert (fresh.frames_to_render, fresh.frames_to_skip, fresh.derivatives_to_make) == (4, 0, 8)
+    assert fresh.seconds_per_frame > 0 and fresh.estimate_seconds > 0
+
+    out = tmp_path / "out"
+    shutil.copytree(published["out"], out)
+    preset = published["root"] / "publish-q70.toml"
+    preset.write_text(PRESET.replace("quality = 88", "quality = 70"), encoding="utf-8")
+    before = sorted((p, p.stat().st_mtime_ns) for p in out.rglob("*"))
+    changed = preview_batch(published["catalog"], preset, out, workers=1, animations=())
+    assert sorted((p, p.stat().st_mtime_ns) for p in out.rglob("*")) == before
+    # only the JPEG derivative changed: 2 models × 2 views, nothing to render
+    assert (changed.frames_to_render, changed.frames_to_skip) == (0, 4)
+    assert changed.derivatives_to_make == 4 and changed.seconds_per_frame is None
+    log = tmp_path / "log.jsonl"
+    batch(published["catalog"], preset, out, log)
+    assert rendered_frames(log) == 0
+
+
+def test_dry_run_from_the_command_line(published, tmp_path):
+    result = CliRunner().invoke(app, ["batch", str(published["catalog"]), "-p",
+                                      str(published["preset"]), "-o", str(published["out"]),
+                                      "--dry-run", "-j", "1"])
+    assert result.exit_code == 0, result.output
+    assert "nothing to render or publish" in result.stdout
+    assert "tavlund_ekra_chair.glb" in result.stdout
+
+
+# --- progress where output is not a terminal ----------------------------------------------------
+
+
+def test_plain_progress_lines_and_log_records(published, tmp_path, monkeypatch, caplog):
+    import logging
+
+    from rich.console import Console
+
+    from shots.batch import progress
+
+    monkeypatch.setattr(progress, "PLAIN_INTERVAL", 0.0)  # a "still rendering" line each frame
+    stream = io.StringIO()
+    console = Console(file=stream, force_terminal=False, width=200)
+    with caplog.at_level(logging.INFO, logger="shots.batch"):
+        run_batch(published["catalog"], published["preset"], tmp_path / "out", workers=1,
+                  animations=(), console=console)
+    lines = stream.getvalue().splitlines()
+    done = [line for line in lines if line.startswith("done ")]
+    assert [line.split(",")[0] for line in done] == [
+        "done 1/2 Box: 2 rendered", "done 2/2 tavlund_ekra_chair: 2 rendered"]
+    assert any(line.startswith("… Box: 1 frame(s) done; 1/4 frames in all") for line in lines)
+    assert "\x1b" not in stream.getvalue()  # no terminal escapes in a CI log
+    messages = [r.getMessage() for r in caplog.records if r.name == "shots.batch"]
+    assert any(m.startswith("done 2/2 tavlund_ekra_chair") for m in messages)

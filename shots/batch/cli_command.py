@@ -48,12 +48,20 @@ def batch(
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bars.")] = False,
     log_json: Annotated[Path | None, typer.Option(
         "--log-json", help="Write one JSON event per line to this file.")] = None,
+    dry_run: Annotated[bool, typer.Option(
+        "--dry-run", help="List what would be rendered, skipped and published, with a time "
+                          "estimate from a short calibration render; write nothing.")] = False,
 ) -> None:
     """Render a catalog: every model × variant × shot of a preset, only what changed."""
     from shots.batch.progress import print_summary
     from shots.batch.run import run_batch
 
     formats = tuple(a.strip() for a in animations.split(",") if a.strip() and a != "none")
+    if dry_run:
+        _dry_run(source, preset, output, variants=variants, force=force, workers=workers,
+                 cluster=cluster, template=template, bits=bits, exr=exr, animations=formats,
+                 fps=fps)
+        return
     try:
         summary = run_batch(
             source, preset, output, variants=variants, force=force, workers=workers,
@@ -70,3 +78,14 @@ def batch(
     else:
         print_summary(summary, err)
     raise typer.Exit(summary.exit_code)
+
+
+def _dry_run(source, preset, output, **options) -> None:
+    from shots.batch.preview import preview_batch, print_preview
+
+    try:
+        preview = preview_batch(source, preset, output, **options)
+    except ShotsError as exc:
+        err.print(f"[bold red]error:[/] {escape(str(exc))}", highlight=False, soft_wrap=True)
+        raise typer.Exit(2) from None
+    print_preview(preview, Console(width=max(Console().width, 120)))

@@ -194,6 +194,33 @@ def run_batch(
     A broken model does not raise: it is reported in the summary (``exit_code`` 1).
     """
     started = time.perf_counter()
+    batch = prepare_batch(source, preset, out_dir, variants=variants, force=force,
+                          workers=workers, cluster=cluster, template=template, bits=bits,
+                          exr=exr, animations=animations, fps=fps, threads=threads, pool=pool)
+    with Reporter(quiet=quiet, log_json=Path(log_json) if log_json else None,
+                  console=console) as reporter:
+        summary = batch.run(reporter)
+        summary.seconds = time.perf_counter() - started
+        reporter.event("summary", models=len(summary.models), failed=len(summary.failures),
+                       rendered=summary.frames_rendered, skipped=summary.frames_skipped,
+                       frames_failed=summary.frames_failed,
+                       animations=summary.animations_written,
+                       seconds=round(summary.seconds, 3), exit_code=summary.exit_code,
+                       failures=[{"model": m, "reason": r} for m, r in summary.failures])
+    return summary
+
+
+def prepare_batch(source, preset, out_dir, *, variants: str = "default", force: bool = False,
+                  workers: int | None = None, cluster: str | None = None,
+                  template: str | None = None, bits: int = 8, exr: bool = False,
+                  animations: tuple[str, ...] = encode.ANIMATION_FORMATS, fps: float = 12.0,
+                  threads: int | None = None, pool: ProcessRunner | None = None) -> Batch:
+    """Check the options (``run_batch`` explains them) and set a batch up, writing nothing.
+
+    Raises
+    ------
+    BatchError, PresetError : the run cannot start.
+    """
     if variants not in VARIANT_CHOICES:
         raise BatchError("--variants", None, f"expected 'default' or 'all', got {variants!r}")
     if bits not in (8, 16):
@@ -208,23 +235,12 @@ def run_batch(
                                                f"(known: {', '.join(encode.ANIMATION_FORMATS)})")
     if not isinstance(preset, Preset):
         preset = load_preset(preset)
-    batch = Batch(
+    return Batch(
         preset=preset, layout=Layout.create(Path(out_dir), template),
         models=find_models(Path(source)), variants=variants, force=force,
         workers=workers, cluster=cluster, bits=bits, exr=exr, animations=tuple(animations),
         fps=float(fps), threads=threads, pool=pool,
     )
-    with Reporter(quiet=quiet, log_json=Path(log_json) if log_json else None,
-                  console=console) as reporter:
-        summary = batch.run(reporter)
-        summary.seconds = time.perf_counter() - started
-        reporter.event("summary", models=len(summary.models), failed=len(summary.failures),
-                       rendered=summary.frames_rendered, skipped=summary.frames_skipped,
-                       frames_failed=summary.frames_failed,
-                       animations=summary.animations_written,
-                       seconds=round(summary.seconds, 3), exit_code=summary.exit_code,
-                       failures=[{"model": m, "reason": r} for m, r in summary.failures])
-    return summary
 
 
 class Batch:
@@ -265,6 +281,7 @@ class Batch:
         self.animations_written = 0
         self.runner = None
         self.reporter: Reporter | None = None
+        self.dry_run = False  # plan only: nothing is written (shots.batch.preview)
         self._check_template()
         self.products: ProductTable | None = (
             load_products(preset.publish.products) if preset.publish.products else None
@@ -399,6 +416,20 @@ class Batch:
             flagged=report.flagged if report else [],
         )
 
+    def plan_only(self, reporter: Reporter) -> None:
+        """Hash, read the manifests and plan every model, as ``run`` does, writing nothing:
+        afterwards each state's ``pending`` and ``rederive`` say what a run would do."""
+        self.reporter, self.dry_run = reporter, True
+        try:
+            for state in self.states:
+                self._inspect(state)
+            self._probe_variants()
+            for state in self.states:
+                self._plan(state)
+        finally:
+            if self.runner is not None and self.runner is not self.pool:
+                self.runner.close()
+
     def _check_consistency(self):
         """Write the consistency report (shots.check) over the first frame of every shot."""
         from shots.check import check_renders
@@ -521,7 +552,7 @@ class Batch:
                     entry["derivatives"] = state.derived[frame]
             else:
                 state.pending.add(frame)
-        if not state.pending:
+        if not state.pending and not self.dry_run:
             self._finish(state)
 
     def _find_products(self, state: ModelState) -> bool:
@@ -808,7 +839,8 @@ class Batch:
         state.done = True
         self._show_hints(state)
         self._write_manifest(state)
-        self.reporter.model_done(state.name, failed=False)
+        self.reporter.model_done(state.name, failed=False, rendered=state.rendered,
+                                 skipped=state.skipped)
 
     def _animate(self, state: ModelState, variant: str, shot: str, old: dict) -> None:
         frames = [FrameId(variant, shot, k) for k in range(self.counts[shot])]
