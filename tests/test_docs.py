@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import re
 import shlex
+import tomllib
 import typing
 from pathlib import Path
 
@@ -198,10 +199,23 @@ def test_every_builtin_preset_is_listed(readme):
         assert presets.load_preset(name).description in rows[0]
 
 
-def toml_example(readme: str) -> str:
+def toml_examples(readme: str) -> list[str]:
     blocks = re.findall(r"^```toml\n(.*?)^```", section(readme, "Walkthrough"), re.S | re.M)
-    assert len(blocks) == 1, "expected one TOML example in the walkthrough"
-    return blocks[0]
+    assert len(blocks) == 2, "expected two TOML examples in the walkthrough (style, publishing)"
+    return blocks
+
+
+def toml_example(readme: str) -> str:
+    return toml_examples(readme)[0]
+
+
+def test_walkthrough_publishing_example_is_the_demo_preset(readme):
+    # the publishing example shows presets/demo-thumbnail.toml's keys with their values
+    example = tomllib.loads(toml_examples(readme)[1])
+    shipped = tomllib.loads((presets.builtin_folder() / "demo-thumbnail.toml").read_text())
+    assert example["extends"] == shipped["extends"] and example["publish"] == shipped["publish"]
+    for shown, real in zip(example["derivatives"], shipped["derivatives"], strict=True):
+        assert shown.items() <= real.items(), (shown, real)
 
 
 def test_walkthrough_preset_loads_and_extends_thumbnail(readme, tmp_path):
