@@ -1,4 +1,4 @@
-"""The invented Tavlund Verkstad demo catalog in assets_demo/: generator, geometry and materials.
+"""The invented Sawdust Lane Workshop demo catalog in assets_demo/: generator, geometry, materials.
 
 The models are read back with libraries that share no code with the generator's writer path:
 trimesh (an independent glTF loader) for geometry and Pillow for the embedded images. pygltflib
