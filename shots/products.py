@@ -6,7 +6,7 @@ materials, else a KHR_materials_variants name), ``sku`` (the product code) and `
 other column is kept and becomes a path-template field of the same name::
 
     model,variant,sku,title,range
-    tavlund_mosse_sofa,oat,TV-1042-OAT,Mosse three-seat sofa,living
+    wool_sofa,oat,SL-4001-OAT,Wool sofa,living
 
 Product codes are unique, and so is each (model, variant) pair; a broken table is refused as a
 whole, naming the line and the column.

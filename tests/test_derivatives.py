@@ -14,8 +14,8 @@ from shots.output import decode_png, encode_png
 from shots.presets import Derivative, load_preset
 from shots.tags import ImageMetadata
 
-META = ImageMetadata(product_code="TV-1042-OAT", title="Mosse sofa, oat weave",
-                     variant="oat", copyright="© 2026 Tavlund Verkstad")
+META = ImageMetadata(product_code="SL-4001-OAT", title="Wool sofa, oat weave",
+                     variant="oat", copyright="© 2026 Sawdust Lane Workshop")
 
 
 def derivative(**keys) -> Derivative:
@@ -164,8 +164,8 @@ def png_derivative_metadata():
 def test_png_derivative_carries_text_metadata():
     text = png_derivative_metadata().text
     assert text["Title"] == META.title
-    assert text["Copyright"] == "© 2026 Tavlund Verkstad"
-    assert text["Product code"] == "TV-1042-OAT" and text["Variant"] == "oat"
+    assert text["Copyright"] == "© 2026 Sawdust Lane Workshop"
+    assert text["Product code"] == "SL-4001-OAT" and text["Variant"] == "oat"
 
 
 FORMATS = ["jpeg", "webp"] + (["avif"] if features.check("avif") else [])
@@ -180,12 +180,12 @@ def test_lossy_derivatives_carry_icc_exif_and_xmp(fmt):
     assert image.format == {"jpeg": "JPEG", "webp": "WEBP", "avif": "AVIF"}[fmt]
     assert_srgb_icc(image)
     exif = image.getexif()
-    assert exif[0x8298] == "(c) 2026 Tavlund Verkstad"  # EXIF 2.32 Copyright tag
-    assert exif[0x010E].startswith("TV-1042-OAT")  # ImageDescription
+    assert exif[0x8298] == "(c) 2026 Sawdust Lane Workshop"  # EXIF 2.32 Copyright tag
+    assert exif[0x010E].startswith("SL-4001-OAT")  # ImageDescription
     xmp = image.info["xmp"]
     xmp = xmp.decode() if isinstance(xmp, bytes) else xmp
-    assert "<dc:identifier>TV-1042-OAT</dc:identifier>" in xmp
-    assert "© 2026 Tavlund Verkstad" in xmp and "Mosse sofa, oat weave" in xmp
+    assert "<dc:identifier>SL-4001-OAT</dc:identifier>" in xmp
+    assert "© 2026 Sawdust Lane Workshop" in xmp and "Wool sofa, oat weave" in xmp
 
 
 def test_webp_keeps_alpha_without_a_background():

@@ -35,7 +35,7 @@ gloss_samples = 1
 bounces = 1
 [publish]
 products = "products.csv"
-copyright = "© 2026 Tavlund Verkstad"
+copyright = "© 2026 Sawdust Lane Workshop"
 [[shots]]
 name = "hero"
 kind = "views"
@@ -54,8 +54,8 @@ box = [40, 40]
 path = "square/{range}/{sku}_{view}.webp"
 """
 PRODUCTS = """model,variant,sku,title,range
-Box,,TV-0001,Sample box,misc
-tavlund_ekra_chair.glb,default,TV-1101,Ekra dining chair,dining
+Box,,SL-0001,Sample box,misc
+oak_dining_chair.glb,default,SL-1101,Oak dining chair,dining
 """
 
 
@@ -63,7 +63,7 @@ def make_catalog(root: Path, preset: str = PRESET, products: str = PRODUCTS) -> 
     catalog = root / "catalog"
     catalog.mkdir(parents=True)
     shutil.copy(SAMPLES / "Box.gltf", catalog)
-    shutil.copy(DEMO / "tavlund_ekra_chair.glb", catalog)
+    shutil.copy(DEMO / "oak_dining_chair.glb", catalog)
     (root / "products.csv").write_text(products, encoding="utf-8")
     path = root / "publish.toml"
     path.write_text(preset, encoding="utf-8")
@@ -95,41 +95,41 @@ def test_derivatives_are_named_by_product_code(published):
     names = sorted(p.relative_to(out).as_posix() for p in out.glob("*/**/*.*")
                    if p.parts[-3] in ("web", "square") or p.parent.name in ("web",))
     assert names == [
-        "square/dining/TV-1101_front.webp", "square/dining/TV-1101_front_left.webp",
-        "square/misc/TV-0001_front.webp", "square/misc/TV-0001_front_left.webp",
-        "web/TV-0001_front.jpg", "web/TV-0001_front_left.jpg",
-        "web/TV-1101_front.jpg", "web/TV-1101_front_left.jpg",
+        "square/dining/SL-1101_front.webp", "square/dining/SL-1101_front_left.webp",
+        "square/misc/SL-0001_front.webp", "square/misc/SL-0001_front_left.webp",
+        "web/SL-0001_front.jpg", "web/SL-0001_front_left.jpg",
+        "web/SL-1101_front.jpg", "web/SL-1101_front_left.jpg",
     ]
 
 
 def test_derivative_sizes_tags_and_metadata(published):
     out = published["out"]
-    jpeg = Image.open(out / "web/TV-1101_front_left.jpg")
+    jpeg = Image.open(out / "web/SL-1101_front_left.jpg")
     assert jpeg.size == (32, 24) and jpeg.mode == "RGB"  # 64 × 48, longest side 32
     assert jpeg.info.get("icc_profile")
-    assert b"TV-1101" in jpeg.info["xmp"] and b"Ekra dining chair" in jpeg.info["xmp"]
-    webp = Image.open(out / "square/dining/TV-1101_front_left.webp")
+    assert b"SL-1101" in jpeg.info["xmp"] and b"Oak dining chair" in jpeg.info["xmp"]
+    webp = Image.open(out / "square/dining/SL-1101_front_left.webp")
     assert webp.size == (40, 40) and webp.mode == "RGBA"  # box kept transparent
     alpha = np.asarray(webp)[..., 3]
     assert alpha[0].max() == 0 and alpha[-1].max() == 0  # 40 × 30 picture, centred
-    master = Image.open(out / "tavlund_ekra_chair/default/hero/000.png")
+    master = Image.open(out / "oak_dining_chair/default/hero/000.png")
     assert master.info.get("srgb") == 0  # PNG spec §11.3.3.5
 
 
 def test_manifest_and_index_list_the_derivatives(published):
     out = published["out"]
-    manifest = json.loads((out / "manifests/tavlund_ekra_chair.json").read_text())
-    assert manifest["products"]["default"]["sku"] == "TV-1101"
+    manifest = json.loads((out / "manifests/oak_dining_chair.json").read_text())
+    assert manifest["products"]["default"]["sku"] == "SL-1101"
     first = manifest["frames"][0]["derivatives"]
     assert [d["name"] for d in first] == ["web", "square"]
     index = (out / "index.csv").read_text()
-    assert "jpeg:web,web/TV-1101_front_left.jpg" in index.replace('"', "")
+    assert "jpeg:web,web/SL-1101_front_left.jpg" in index.replace('"', "")
 
 
 def test_derivatives_from_memory_equal_those_from_the_master_file(published, tmp_path):
     out = tmp_path / "out"
     shutil.copytree(published["out"], out)
-    target = out / "web/TV-0001_front.jpg"
+    target = out / "web/SL-0001_front.jpg"
     original = target.read_bytes()
     target.unlink()
     log = tmp_path / "log.jsonl"
@@ -144,14 +144,14 @@ def test_changed_derivative_settings_remake_derivatives_not_frames(published, tm
     preset = published["root"] / "publish-q60.toml"
     preset.write_text(PRESET.replace("quality = 88", "quality = 60"), encoding="utf-8")
     masters = {p: p.read_bytes() for p in out.rglob("hero/*.png")}
-    webp = (out / "square/misc/TV-0001_front.webp").read_bytes()
-    jpeg = (out / "web/TV-0001_front.jpg").read_bytes()
+    webp = (out / "square/misc/SL-0001_front.webp").read_bytes()
+    jpeg = (out / "web/SL-0001_front.jpg").read_bytes()
     log = tmp_path / "log.jsonl"
     batch(published["catalog"], preset, out, log)
     assert rendered_frames(log) == 0
     assert all(p.read_bytes() == data for p, data in masters.items())
-    assert (out / "web/TV-0001_front.jpg").read_bytes() != jpeg
-    assert (out / "square/misc/TV-0001_front.webp").read_bytes() == webp
+    assert (out / "web/SL-0001_front.jpg").read_bytes() != jpeg
+    assert (out / "square/misc/SL-0001_front.webp").read_bytes() == webp
 
 
 def test_a_model_missing_from_the_product_table_is_reported(tmp_path):
@@ -160,10 +160,10 @@ def test_a_model_missing_from_the_product_table_is_reported(tmp_path):
     summary = batch(catalog, preset, tmp_path / "out")
     assert summary.exit_code == 1
     [(model, reason)] = summary.failures
-    assert model == "tavlund_ekra_chair.glb"
+    assert model == "oak_dining_chair.glb"
     assert "variant 'default' is not in the product table" in reason
-    assert not (tmp_path / "out/web/tavlund_ekra_chair_front.jpg").exists()
-    assert (tmp_path / "out/web/TV-0001_front.jpg").is_file()
+    assert not (tmp_path / "out/web/oak_dining_chair_front.jpg").exists()
+    assert (tmp_path / "out/web/SL-0001_front.jpg").is_file()
 
 
 @pytest.mark.parametrize(("path", "words"), [
@@ -185,14 +185,14 @@ def test_bad_templates_stop_the_batch_before_rendering(tmp_path, path, words):
 
 
 def test_cli_refuses_duplicate_product_codes_on_one_line(tmp_path):
-    products = PRODUCTS.replace("TV-1101", "TV-0001")
+    products = PRODUCTS.replace("SL-1101", "SL-0001")
     catalog, preset = make_catalog(tmp_path, products=products)
     result = CliRunner().invoke(app, ["batch", str(catalog), "-p", str(preset),
                                       "-o", str(tmp_path / "out"), "-q"])
     assert result.exit_code == 2
     lines = result.output.strip().splitlines()
     assert len(lines) == 1, result.output
-    assert "products.csv: line 3, sku: 'TV-0001' is already the code of line 2" in lines[0]
+    assert "products.csv: line 3, sku: 'SL-0001' is already the code of line 2" in lines[0]
     assert not (tmp_path / "out").exists() or not list((tmp_path / "out").rglob("*.png"))
 
 
@@ -222,8 +222,8 @@ def test_product_rows_are_found_by_file_name_or_stem(tmp_path):
     path = tmp_path / "products.csv"
     path.write_text(PRODUCTS, encoding="utf-8")
     table = load_products(path)
-    assert table.lookup("Box.gltf", "default")["sku"] == "TV-0001"
-    assert table.lookup("sub/tavlund_ekra_chair.glb", "default")["sku"] == "TV-1101"
+    assert table.lookup("Box.gltf", "default")["sku"] == "SL-0001"
+    assert table.lookup("sub/oak_dining_chair.glb", "default")["sku"] == "SL-1101"
     assert table.lookup("Box.gltf", "oak") is None
     assert table.fields == ("sku", "title", "range")
 
@@ -316,7 +316,7 @@ def test_dry_run_from_the_command_line(published, tmp_path):
                                       "--dry-run", "-j", "1"])
     assert result.exit_code == 0, result.output
     assert "nothing to render or publish" in result.stdout
-    assert "tavlund_ekra_chair.glb" in result.stdout
+    assert "oak_dining_chair.glb" in result.stdout
 
 
 # --- progress where output is not a terminal ----------------------------------------------------
@@ -338,8 +338,8 @@ def test_plain_progress_lines_and_log_records(published, tmp_path, monkeypatch, 
     lines = stream.getvalue().splitlines()
     done = [line for line in lines if line.startswith("done ")]
     assert [line.split(",")[0] for line in done] == [
-        "done 1/2 Box: 2 rendered", "done 2/2 tavlund_ekra_chair: 2 rendered"]
+        "done 1/2 Box: 2 rendered", "done 2/2 oak_dining_chair: 2 rendered"]
     assert any(line.startswith("… Box: 1 frame(s) done; 1/4 frames in all") for line in lines)
     assert "\x1b" not in stream.getvalue()  # no terminal escapes in a CI log
     messages = [r.getMessage() for r in caplog.records if r.name == "shots.batch"]
-    assert any(m.startswith("done 2/2 tavlund_ekra_chair") for m in messages)
+    assert any(m.startswith("done 2/2 oak_dining_chair") for m in messages)

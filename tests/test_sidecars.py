@@ -50,8 +50,8 @@ def catalog_with_sidecar(root: Path, sidecar: str = LONG_LENS) -> tuple[Path, Pa
     catalog = root / "catalog"
     catalog.mkdir(parents=True)
     shutil.copy(SAMPLES / "Box.gltf", catalog)
-    shutil.copy(DEMO / "tavlund_ekra_chair.glb", catalog)
-    (catalog / "tavlund_ekra_chair.shots.toml").write_text(sidecar, encoding="utf-8")
+    shutil.copy(DEMO / "oak_dining_chair.glb", catalog)
+    (catalog / "oak_dining_chair.shots.toml").write_text(sidecar, encoding="utf-8")
     preset = root / "house.toml"
     preset.write_text(PRESET, encoding="utf-8")
     return catalog, preset
@@ -70,9 +70,9 @@ def test_sidecar_is_merged_recorded_and_rerenders_only_its_model(tmp_path):
     catalog, preset = catalog_with_sidecar(tmp_path)
     out = tmp_path / "out"
     batch(catalog, preset, out, tmp_path / "1.jsonl")
-    chair = json.loads((out / "manifests/tavlund_ekra_chair.json").read_text())
+    chair = json.loads((out / "manifests/oak_dining_chair.json").read_text())
     box = json.loads((out / "manifests/Box.json").read_text())
-    assert chair["sidecar"]["file"] == "tavlund_ekra_chair.shots.toml"
+    assert chair["sidecar"]["file"] == "oak_dining_chair.shots.toml"
     assert box["sidecar"] is None
     # the merged lens: 135 mm on a 36 mm sensor is 2·atan(18/135) = 15.19° across (thin lens)
     import math
@@ -81,14 +81,14 @@ def test_sidecar_is_merged_recorded_and_rerenders_only_its_model(tmp_path):
     assert camera["yfov_deg"] == pytest.approx(math.degrees(2 * math.atan(18 / 135)), abs=0.01)
     assert chair["preset_sha256"] != box["preset_sha256"]
 
-    sidecar = catalog / "tavlund_ekra_chair.shots.toml"
+    sidecar = catalog / "oak_dining_chair.shots.toml"
     sidecar.write_text(LONG_LENS.replace("exposure = 0.5", "exposure = 0.25"), encoding="utf-8")
     batch(catalog, preset, out, tmp_path / "2.jsonl")
-    assert rendered(tmp_path / "2.jsonl") == ["tavlund_ekra_chair"]
+    assert rendered(tmp_path / "2.jsonl") == ["oak_dining_chair"]
     sidecar.unlink()
     batch(catalog, preset, out, tmp_path / "3.jsonl")
-    assert rendered(tmp_path / "3.jsonl") == ["tavlund_ekra_chair"]
-    assert json.loads((out / "manifests/tavlund_ekra_chair.json").read_text())["sidecar"] is None
+    assert rendered(tmp_path / "3.jsonl") == ["oak_dining_chair"]
+    assert json.loads((out / "manifests/oak_dining_chair.json").read_text())["sidecar"] is None
 
 
 @pytest.mark.parametrize(("text", "field", "words"), [
@@ -101,7 +101,7 @@ def test_sidecar_is_merged_recorded_and_rerenders_only_its_model(tmp_path):
 ])
 def test_broken_sidecars_stop_the_batch_naming_the_sidecar(tmp_path, text, field, words):
     catalog, preset = catalog_with_sidecar(tmp_path, text)
-    sidecar = catalog / "tavlund_ekra_chair.shots.toml"
+    sidecar = catalog / "oak_dining_chair.shots.toml"
     with pytest.raises(PresetError) as caught:
         run_batch(catalog, preset, tmp_path / "out", quiet=True, workers=1)
     message = str(caught.value)
@@ -132,12 +132,12 @@ def test_shown_preset_loads_back_to_the_same_preset(tmp_path, name):
 def test_show_merges_a_models_sidecar(tmp_path):
     catalog, preset = catalog_with_sidecar(tmp_path)
     result = runner.invoke(app, ["preset", "show", str(preset), "--model",
-                                 str(catalog / "tavlund_ekra_chair.glb")])
+                                 str(catalog / "oak_dining_chair.glb")])
     assert result.exit_code == 0, result.output
     data = tomllib.loads(result.stdout)
     assert data["shots"][0]["focal_length_mm"] == 135 and data["look"]["exposure"] == 0.5
     assert data["image"]["width"] == 40  # from the house preset
-    assert "tavlund_ekra_chair.shots.toml" in result.stdout.splitlines()[0]
+    assert "oak_dining_chair.shots.toml" in result.stdout.splitlines()[0]
 
 
 def test_show_refuses_a_broken_preset_on_one_line(tmp_path):
