@@ -22,7 +22,7 @@ import io
 import numpy as np
 from PIL import Image
 
-from shots.colour import linear_to_srgb, srgb_to_linear
+from shots.colour import srgb_to_linear
 from shots.tags import NO_METADATA, ImageMetadata, exif_bytes, srgb_icc_profile, tag_png, xmp_packet
 
 WEBP_METHOD = 4  # libwebp effort 0–6: its own default, a balance of time and size
@@ -97,9 +97,17 @@ def compose(premultiplied: np.ndarray, canvas: tuple[int, int],
     return np.concatenate([_codes(straight), _codes(alpha, srgb=False)], axis=-1)
 
 
+# Linear light where each 8-bit sRGB code begins: code k covers [ENCODE_8[k - 1], ENCODE_8[k]),
+# the decoded midpoints between codes, so a binary search rounds to the nearest code as
+# rint(255 · sRGB(x)) does, without the power function on every pixel
+ENCODE_8 = srgb_to_linear((np.arange(1, 256) - 0.5) / 255.0).astype(np.float32)
+
+
 def _codes(values: np.ndarray, srgb: bool = True) -> np.ndarray:
-    encoded = linear_to_srgb(values) if srgb else np.clip(values, 0.0, 1.0)
-    return np.rint(encoded * 255.0).astype(np.uint8)
+    """uint8 codes of linear values (sRGB-encoded) or of alpha (``srgb`` False)."""
+    if srgb:
+        return np.searchsorted(ENCODE_8, values, side="right").astype(np.uint8)
+    return np.rint(np.clip(values, 0.0, 1.0) * 255.0).astype(np.uint8)
 
 
 def make_derivative(codes: np.ndarray, derivative, metadata: ImageMetadata = NO_METADATA) -> bytes:

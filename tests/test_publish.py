@@ -18,6 +18,7 @@ from shots.batch import run_batch
 from shots.batch.encode import mp4_bytes
 from shots.cli import app
 from shots.errors import BatchError, PresetError
+from shots.presets import load_preset
 from shots.products import load_products
 
 HERE = Path(__file__).parent
@@ -343,3 +344,23 @@ def test_plain_progress_lines_and_log_records(published, tmp_path, monkeypatch, 
     assert "\x1b" not in stream.getvalue()  # no terminal escapes in a CI log
     messages = [r.getMessage() for r in caplog.records if r.name == "shots.batch"]
     assert any(m.startswith("done 2/2 oak_dining_chair") for m in messages)
+
+
+def test_a_derivative_landing_on_a_master_frame_stops_the_batch(tmp_path):
+    text = PRESET.replace('format = "webp"', 'format = "png"').replace(
+        '"square/{range}/{sku}_{view}.webp"', '"{model}/{variant}/{shot}/{frame}.png"')
+    catalog, preset = make_catalog(tmp_path, text)
+    with pytest.raises(BatchError, match=r"derivatives: .*two of its outputs would be"):
+        batch(catalog, preset, tmp_path / "out")
+    assert not list((tmp_path / "out").rglob("*.png"))
+
+
+def test_avif_without_libavif_is_a_clear_error(tmp_path, monkeypatch):
+    from PIL import features
+
+    monkeypatch.setattr(features, "check", lambda name: name != "avif")
+    preset = tmp_path / "p.toml"
+    preset.write_text('[[derivatives]]\nname = "a"\nformat = "avif"\nlongest_side = 9\n'
+                      'path = "a/{model}.avif"\n')
+    with pytest.raises(PresetError, match=r"derivatives\[0\]: .*cannot write AVIF"):
+        load_preset(preset)

@@ -531,11 +531,13 @@ class Batch:
         for frame in state.planned:
             state.derived[frame] = self._derivatives_of(state, frame)
         derivative_paths = [d["path"] for wanted in state.derived.values() for d in wanted]
-        clash = self._claim(state, list(paths.values()) + self._animation_paths(state)
-                            + derivative_paths)
+        clash = self._claim(state, list(paths.values()) + self._animation_paths(state))
         if clash:
             self._fail(state, clash, state.planned)
             return
+        clash = self._claim(state, derivative_paths)
+        if clash:  # the preset's templates collide: no model's files would be safe
+            raise BatchError(self.preset.source, "derivatives", clash)
         state.paths = paths
         for frame in state.planned:
             entry = old_frames.get(frame)
@@ -626,6 +628,8 @@ class Batch:
                     f"template {self.layout.template!r} (variant names alike once made safe?)")
         for path in wanted:
             owner = self.owners.get(path)
+            if owner == state.entry.listed_as:
+                return f"{state.entry.listed_as}: two of its outputs would be {path!r}"
             if owner is not None:
                 return (f"{state.entry.listed_as}: its output {path!r} would overwrite one of "
                         f"{owner} (two models with the same name?)")
