@@ -364,3 +364,8 @@ def test_avif_without_libavif_is_a_clear_error(tmp_path, monkeypatch):
                       'path = "a/{model}.avif"\n')
     with pytest.raises(PresetError, match=r"derivatives\[0\]: .*cannot write AVIF"):
         load_preset(preset)
+
+
+def test_contact_sheet_is_tagged_srgb(published):
+    sheet = Image.open(published["out"] / "contact_sheet.png")
+    assert sheet.info.get("srgb") == 0  # PNG spec §11.3.3.5
