@@ -13,7 +13,7 @@ import hashlib
 import json
 import math
 import struct
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from urllib.parse import unquote, urlsplit
 
@@ -207,14 +207,22 @@ class RenderTask:
 class DeriveTask:
     """Derivatives to re-make from master frames that are up to date (settings changed).
 
-    ``frames`` are (shot, index, the master's PNG bytes, names of the derivatives to make).
+    ``frames`` are (shot, index, master, names of the derivatives to make); the master is the
+    PNG file's path until ``with_masters`` reads it, just before the task is sent (a cluster's
+    workers may not see the output folder, and only tasks in flight hold their bytes).
     """
 
     model: str
     variant: str
-    frames: tuple[tuple[str, int, bytes, tuple[str, ...]], ...]
+    frames: tuple[tuple[str, int, Path | bytes, tuple[str, ...]], ...]
     derivatives: tuple[Derivative, ...]
     metadata: ImageMetadata = NO_METADATA
+
+    def with_masters(self) -> DeriveTask:
+        """The task with every master's PNG bytes in place of its path."""
+        frames = tuple((shot, index, Path(master).read_bytes() if isinstance(master, Path)
+                        else master, names) for shot, index, master, names in self.frames)
+        return replace(self, frames=frames)
 
 
 @dataclass

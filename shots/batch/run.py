@@ -669,12 +669,11 @@ class Batch:
                                 self.exr, self.animated, metadata) + derive
 
     def _derive_task(self, state: ModelState, variant: str, frames: list[FrameId]) -> DeriveTask:
-        """Re-make stale derivatives from the masters on disk (read here: a cluster's workers
-        may not see the output folder)."""
+        """Re-make stale derivatives from the masters on disk."""
         return DeriveTask(
             state.key, variant,
-            tuple((f.shot, f.index, self.layout.absolute(state.paths[f]).read_bytes(),
-                   state.rederive[f]) for f in frames),
+            tuple((f.shot, f.index, self.layout.absolute(state.paths[f]), state.rederive[f])
+                  for f in frames),
             tuple(self.preset.derivatives), state.metadata[variant])
 
     def _render(self, tasks: list[RenderTask | DeriveTask]) -> None:
@@ -692,6 +691,8 @@ class Batch:
                 if state.error is not None:
                     self._fail(state, state.error, self._frames_of(task))
                     continue
+                if isinstance(task, DeriveTask):
+                    task = task.with_masters()
                 in_flight[runner.submit(run_task, task)] = task
             if not in_flight:
                 break
