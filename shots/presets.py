@@ -360,9 +360,9 @@ class Derivative(Table):
     in linear light, flattened on ``background`` or kept transparent, and written to ``path``.
 
     ``path`` is a template relative to the output folder with the fields ``{model}``,
-    ``{variant}``, ``{shot}``, ``{frame}``, ``{view}``, ``{size}`` (this file's pixel size),
-    ``{name}`` (this derivative's), and with a product table ``{sku}``, ``{title}`` and its
-    other columns; it ends with the format's file suffix.
+    ``{variant}``, ``{shot}``, ``{frame}``, ``{view}`` (a named view, else the frame number),
+    ``{size}`` (this file's pixel size), ``{name}`` (this derivative's), and with a product
+    table ``{sku}``, ``{title}`` and its other columns; it ends with the format's file suffix.
     """
 
     name: ShotName  # names the derivative in manifests and the {name} field; unique
