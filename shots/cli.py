@@ -158,7 +158,8 @@ def demo(output: OutputOpt = Path("renders"), quiet: QuietOpt = False) -> None:
         if not quiet:
             print_summary(summary, err)
     out.print(f"demo renders in {output}/ (contact sheet: {output}/thumbnails/contact_sheet.png,"
-              f" report: {output}/thumbnails/report.md)", highlight=False)
+              f" report: {output}/thumbnails/report.md, storefront sets: "
+              f"{output}/thumbnails/storefront/)", highlight=False)
     raise typer.Exit(max(summary.exit_code for summary in summaries))
 
 
