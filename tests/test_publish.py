@@ -93,6 +93,7 @@ def published(tmp_path_factory):
 def test_derivatives_are_named_by_product_code(published):
     out = published["out"]
     assert published["summary"].exit_code == 0
+    assert published["summary"].derivatives_written == 8
     names = sorted(p.relative_to(out).as_posix() for p in out.glob("*/**/*.*")
                    if p.parts[-3] in ("web", "square") or p.parent.name in ("web",))
     assert names == [
@@ -148,8 +149,8 @@ def test_changed_derivative_settings_remake_derivatives_not_frames(published, tm
     webp = (out / "square/misc/SL-0001_front.webp").read_bytes()
     jpeg = (out / "web/SL-0001_front.jpg").read_bytes()
     log = tmp_path / "log.jsonl"
-    batch(published["catalog"], preset, out, log)
-    assert rendered_frames(log) == 0
+    summary = batch(published["catalog"], preset, out, log)
+    assert rendered_frames(log) == 0 and summary.derivatives_written == 4  # 2 models × 2 views
     assert all(p.read_bytes() == data for p, data in masters.items())
     assert (out / "web/SL-0001_front.jpg").read_bytes() != jpeg
     assert (out / "square/misc/SL-0001_front.webp").read_bytes() == webp

@@ -165,6 +165,8 @@ def print_summary(summary, console: Console) -> None:
     table.add_row("total", "", str(summary.frames_rendered), str(summary.frames_skipped),
                   str(summary.frames_failed), f"{len(summary.failures)} failed", end_section=True)
     console.print(table)
+    if summary.derivatives_written:
+        console.print(f"derivatives written: {summary.derivatives_written}", highlight=False)
     for note in summary.notes:
         console.print(escape(note), highlight=False, soft_wrap=True)
     for image, reasons in summary.flagged:

@@ -79,6 +79,7 @@ class BatchSummary:
     notes: list[str] = field(default_factory=list)
     report: Path | None = None  # the consistency report (report.md) of the first frames
     flagged: list[tuple[Path, list[str]]] = field(default_factory=list)
+    derivatives_written: int = 0
 
     @property
     def frames_rendered(self) -> int:
@@ -205,6 +206,7 @@ def run_batch(
                        rendered=summary.frames_rendered, skipped=summary.frames_skipped,
                        frames_failed=summary.frames_failed,
                        animations=summary.animations_written,
+                       derivatives=summary.derivatives_written,
                        seconds=round(summary.seconds, 3), exit_code=summary.exit_code,
                        failures=[{"model": m, "reason": r} for m, r in summary.failures])
     return summary
@@ -279,6 +281,7 @@ class Batch:
         self.by_key = {state.key: state for state in self.states}
         self.owners: dict[str, str] = {}  # output path → model that writes it
         self.animations_written = 0
+        self.derivatives_written = 0
         self.runner = None
         self.reporter: Reporter | None = None
         self.dry_run = False  # plan only: nothing is written (shots.batch.preview)
@@ -411,6 +414,7 @@ class Batch:
         return BatchSummary(
             out_dir=self.layout.out_dir, models=[self._outcome(s) for s in self.states],
             animations_written=self.animations_written, seconds=0.0, index=index,
+            derivatives_written=self.derivatives_written,
             contact_sheet=sheet, notes=self.notes,
             report=report.markdown_path if report else None,
             flagged=report.flagged if report else [],
@@ -762,6 +766,7 @@ class Batch:
             data = image.derivatives.get(wanted["name"])
             if data is not None:
                 atomic_write_bytes(self.layout.absolute(wanted["path"]), data)
+                self.derivatives_written += 1
         state.entries[frame]["derivatives"] = state.derived[frame]
         state.rederive.pop(frame, None)
         state.add_time("derive_s", image.derive_seconds)
