@@ -158,8 +158,9 @@ def demo(output: OutputOpt = Path("renders"), quiet: QuietOpt = False) -> None:
         if not quiet:
             print_summary(summary, err)
     out.print(f"demo renders in {output}/ (contact sheet: {output}/thumbnails/contact_sheet.png,"
-              f" report: {output}/thumbnails/report.md, storefront sets: "
-              f"{output}/thumbnails/storefront/)", highlight=False)
+              f" report: {output}/thumbnails/report.md, review page:"
+              f" {output}/thumbnails/review.html, storefront sets:"
+              f" {output}/thumbnails/storefront/)", highlight=False)
     raise typer.Exit(max(summary.exit_code for summary in summaries))
 
 
@@ -170,41 +171,75 @@ def check(
     shot: Annotated[
         str | None,
         typer.Option("--shot", metavar="SHOT",
-                     help="Only images whose path names this shot, e.g. thumbnail."),
+                     help="Only the images of this shot, as the batch manifests name it (images "
+                          "without one: by folder or file name)."),
     ] = None,
+    against: Annotated[
+        Path | None,
+        typer.Option("--against", metavar="APPROVED", help="A folder of approved renders: compare every image with "
+                                       "the approved one of the same model, variant, shot and "
+                                       "frame (SSIM, CIEDE2000) and draw what changed."),
+    ] = None,
+    preset: Annotated[
+        str | None,
+        typer.Option("--preset", "-p", metavar="PRESET", help="Take the tolerances from this preset's [check] "
+                                            "table (built-in name or TOML file)."),
+    ] = None,
+    tolerance: Annotated[
+        list[str] | None,
+        typer.Option("--tolerance", "-t", metavar="KEY=VALUE", help="Override one tolerance, KEY=VALUE "
+                                               "(repeatable), e.g. exposure_stops=0.5."),
+    ] = None,
+    as_json: Annotated[
+        bool, typer.Option("--json", metavar=FLAG, help="Print the report as JSON on stdout.")
+    ] = False,
 ) -> None:
-    """Measure every thumbnail's fill, centring, background and exposure; flag the odd ones."""
+    """Measure every PNG render (framing, centring, background, light on the product, texture,
+    orientation), compare variants and, given approved renders, those too; flag the odd ones.
+
+    Writes report.md, report.json and review.html beside the renders; exits 1 when an image
+    is flagged.
+    """
     from shots.check import check_renders
+    from shots.check.report import report_json
+    from shots.presets import check_settings, load_preset
 
     try:
-        images = thumbnails_in(renders, shot)
-        if not images:
-            fail(f"{renders}: no rendered images found" + (f" for shot {shot!r}" if shot else ""))
-        report = check_renders(images)
+        base = load_preset(preset).check.model_dump() if preset else {}
+        overrides = parse_tolerances(tolerance or [])
+        tolerances = check_settings({**base, **overrides}, "--tolerance" if overrides else
+                                    str(preset or "[check]"))
+        report = check_renders(renders, tolerances, against=against, shot=shot)
     except ShotsError as exc:
         fail(str(exc))
-    for image, reasons in report.flagged:
-        out.print(f"[yellow]flagged[/] {image}: {'; '.join(reasons)}", highlight=False)
-    out.print(f"{len(report.flagged)} of {len(report.images)} image(s) flagged; "
-              f"report in {report.markdown_path}", highlight=False)
+    if as_json:
+        sys.stdout.write(report_json(report))
+    else:
+        for image, reasons in report.flagged:
+            out.print(f"[yellow]flagged[/] {escape(str(image))}: {escape('; '.join(reasons))}",
+                      highlight=False)
+        out.print(f"{len(report.flagged)} of {len(report.images)} image(s) flagged; report in "
+                  f"{escape(str(report.markdown_path))}, review page "
+                  f"{escape(str(report.review_path))}", highlight=False)
     raise typer.Exit(1 if report.flagged else 0)
 
 
-def thumbnails_in(folder: Path, shot: str | None) -> list[Path]:
-    """Rendered PNG files under ``folder`` (not the batch's own contact sheet), optionally only
-    those with ``shot`` as a path component or name prefix."""
-    from shots.batch.layout import RESERVED
+def parse_tolerances(items: list[str]) -> dict[str, object]:
+    """``KEY=VALUE`` pairs, the value read as a TOML value (so ``0.5`` is a number and ``abc``
+    stays text for the validator to refuse)."""
+    import tomllib
 
-    if folder.is_file():
-        return [folder]
-    found = [
-        p for p in sorted(folder.rglob("*.png"))
-        if p.relative_to(folder).as_posix() not in RESERVED
-        and not any(part.startswith(".") for part in p.relative_to(folder).parts)
-    ]
-    if shot is None:
-        return found
-    return [p for p in found if shot in p.relative_to(folder).parts or p.stem.startswith(shot)]
+    values = {}
+    for item in items:
+        key, sep, text = item.partition("=")
+        if not sep or not key.strip():
+            fail(f"--tolerance: expected KEY=VALUE, got {item!r}")
+        try:
+            value = tomllib.loads(f"v = {text.strip()}")["v"]
+        except tomllib.TOMLDecodeError:
+            value = text.strip()
+        values[key.strip()] = value
+    return values
 
 
 preset_app = typer.Typer(cls=ShotsGroup, no_args_is_help=True,

@@ -150,6 +150,65 @@ class GroundSettings(Table):
     sweep_distance: float = Field(2.0, gt=0.0)  # metres behind the target
 
 
+class CheckSettings(Table):
+    """How far a rendered image may stray before ``shots check`` (and every batch) flags it.
+
+    Fractions of the frame unless said otherwise. ``shots check --tolerance KEY=VALUE`` overrides
+    one key for a run.
+    """
+
+    fill: float = Field(0.08, ge=0.0, le=1.0, description=(
+        "Most difference of the product's fill from the catalog median (compared only when the "
+        "catalog's fills agree within `fill_spread`)."))
+    fill_spread: float = Field(0.04, ge=0.0, le=1.0, description=(
+        "The catalog counts as framed to one fill when the median deviation of its fills is at "
+        "most this; only then are fill and the vertical centre compared."))
+    centre_offset: float = Field(0.03, ge=0.0, le=1.0, description=(
+        "Most offset of the product's box centre from the frame centre."))
+    exposure_stops: float = Field(1.0, ge=0.0, description=(
+        "Most difference, in stops, of the light on the product (rendered over albedo "
+        "luminance) from the catalog median."))
+    variant_stops: float = Field(0.5, ge=0.0, description=(
+        "Most difference, in stops, of the light on one variant from the median of the same "
+        "model's variants and shots of the same name."))
+    white_base: float = Field(0.5, ge=0.0, le=1.0, description=(
+        "Most share of the visible surface whose base colour is pure white (a texture lost on "
+        "export leaves the white factor alone)."))
+    clipped: float = Field(0.10, ge=0.0, le=1.0, description=(
+        "Most share of product pixels at full white."))
+    purity: float = Field(0.99, ge=0.0, le=1.0, description=(
+        "Transparent backgrounds: least share of clean background pixels."))
+    border_std: float = Field(0.02, ge=0.0, le=1.0, description=(
+        "Opaque backgrounds: most spread of the border around its colour."))
+    flat_ratio: float = Field(0.25, ge=0.0, le=1.0, description=(
+        "Flat colour: texture detail below this share of the catalog median is flagged."))
+    flat_floor: float = Field(0.01, ge=0.0, le=1.0, description=(
+        "The flat-colour check runs only when the catalog median detail reaches this."))
+    shadow_above: float = Field(0.1, ge=0.0, description=(
+        "Upside down: the shadow's centre this many box heights above the product's."))
+    mass_low: float = Field(0.55, ge=0.0, le=1.0, description=(
+        "Upside down: the outline's mass lower than this (0 top, 1 bottom of its box)..."))
+    mass_margin: float = Field(0.1, ge=0.0, le=1.0, description=(
+        "... and this far below the catalog median."))
+    min_catalog: int = Field(3, ge=1, description=(
+        "Images with a product needed before anything is compared with the catalog median."))
+    alpha_threshold: float = Field(0.5, ge=0.0, le=1.0, description=(
+        "Transparent backgrounds: least alpha of a product pixel."))
+    shadow_level: float = Field(3 / 255, ge=0.0, le=1.0, description=(
+        "A pixel with every channel at most this is shadow, whatever its alpha."))
+    background_threshold: float = Field(0.06, ge=0.0, le=1.0, description=(
+        "Opaque backgrounds: a product pixel differs from the background by more than this."))
+    opaque_shadow_floor: float = Field(0.75, ge=0.0, le=1.0, description=(
+        "Opaque backgrounds: a soft shadow keeps at least this share of the background."))
+    ssim: float = Field(0.97, ge=0.0, le=1.0, description=(
+        "Against approved images: least mean structural similarity (SSIM, Wang et al. 2004)."))
+    delta_e: float = Field(5.0, ge=0.0, description=(
+        "Against approved images: a pixel has changed when the CIEDE2000 difference of its "
+        "neighbourhood's colour exceeds this."))
+    changed_share: float = Field(0.002, ge=0.0, le=1.0, description=(
+        "Against approved images: most share of changed pixels."))
+
+
 class RigLight(Table):
     """A studio light placed around the model, relative to the camera unless attached to the world.
 
@@ -419,6 +478,7 @@ class Preset(Table):
     shots: list[Shot] = Field(default_factory=list, max_length=256)
     derivatives: list[Derivative] = Field(default_factory=list, max_length=32)
     publish: PublishSettings = PublishSettings()
+    check: CheckSettings = CheckSettings()
     _source: str = PrivateAttr("")
 
     @property
@@ -583,6 +643,20 @@ def _merge_sidecar(sidecar: Path, data: dict, origins: dict) -> None:
             raise PresetError(sidecar, f"image.{key}", "a sidecar cannot change the image "
                                                        "size (the catalog's files share it)")
     _merge(data, origins, own, _origins_of(own, str(sidecar), ()), ())
+
+
+def check_settings(values: dict, source: str = "[check]") -> CheckSettings:
+    """Check tolerances from a table of overrides, validated like a preset's ``[check]`` table.
+
+    Raises
+    ------
+    PresetError : naming ``source`` and the key (``check.fill``) with what is allowed.
+    """
+    try:
+        return Preset.model_validate({"check": dict(values)}).check
+    except ValidationError as exc:
+        field, message = _first_problem(exc)
+        raise PresetError(source, field, message) from None
 
 
 def _locate(name_or_path: str | Path) -> Path:

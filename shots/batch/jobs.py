@@ -83,12 +83,13 @@ def _external_uris(path: Path) -> set[str]:
 def preset_sha256(preset: Preset) -> str:
     """SHA-256 of the resolved preset as canonical JSON (sorted keys, no spaces).
 
-    The description, derivatives and publishing settings are left out (they change no pixel of
-    a master frame: derivatives have keys of their own); an environment image is represented by
-    its content hash rather than its path, so moving the preset does not re-render a catalog.
+    The description, the check's tolerances, derivatives and publishing settings are left out
+    (they change no pixel of a master frame: derivatives have keys of their own); an
+    environment image is represented by its content hash rather than its path, so moving the
+    preset does not re-render a catalog.
     """
     data = preset.model_dump(mode="json")
-    for key in ("description", "derivatives", "publish"):
+    for key in ("description", "check", "derivatives", "publish"):
         data.pop(key, None)
     image = data.get("environment", {}).get("image")
     if image:

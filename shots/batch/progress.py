@@ -173,8 +173,9 @@ def print_summary(summary, console: Console) -> None:
         console.print(f"[yellow]flagged:[/] {escape(str(image))}: {escape('; '.join(reasons))}", highlight=False,
                       soft_wrap=True)
     if summary.report is not None:
-        console.print(f"consistency report: {summary.report} "
-                      f"({len(summary.flagged)} image(s) flagged)", highlight=False)
+        console.print(f"consistency report: {escape(str(summary.report))} "
+                      f"({len(summary.flagged)} image(s) flagged), review page: "
+                      f"{escape(str(summary.report.with_name('review.html')))}", highlight=False)
     for listed_as, reason in summary.failures:
         console.print(f"[bold red]failed:[/] {escape(listed_as)}: {escape(reason)}", highlight=False,
                       soft_wrap=True)

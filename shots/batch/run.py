@@ -30,7 +30,7 @@ from shots.batch.progress import Reporter
 from shots.batch.runner import WORKER_DIED, ProcessRunner, available_cores, make_runner
 from shots.batch.sheet import CELL, SheetCell, contact_sheet_bytes, thumbnail
 from shots.batch.worker import TaskResult, exr_available, probe_variants, run_task
-from shots.check.judge import Tolerances
+from shots.check.judge import mask_rules
 from shots.check.measure import measure_codes
 from shots.derivatives import canvas_size
 from shots.errors import BatchError
@@ -435,7 +435,8 @@ class Batch:
                 self.runner.close()
 
     def _check_consistency(self):
-        """Write the consistency report (shots.check) over the first frame of every shot."""
+        """Write the consistency report and review page (shots.check) over the first frame of
+        every shot, with the preset's [check] tolerances."""
         from shots.check import check_renders
 
         images = [
@@ -448,7 +449,8 @@ class Batch:
         images = [path for path in images if path.is_file()]
         if not images:
             return None
-        return check_renders(images, report_dir=self.layout.out_dir, measured=self.measured)
+        return check_renders(images, self.preset.check, report_dir=self.layout.out_dir,
+                             measured=self.measured)
 
     def _frame_total(self) -> int:
         per_variant = sum(self.counts.values())
@@ -793,7 +795,7 @@ class Batch:
         """Use a frame's 8-bit codes now (first frames: report and contact sheet) or keep them
         for its animation, instead of decoding its PNG file later."""
         if frame.index == 0:
-            self.measured[path] = measure_codes(codes, path, Tolerances().mask_rules())
+            self.measured[path] = measure_codes(codes, path, mask_rules(self.preset.check))
             self.thumbnails[path] = thumbnail(codes, self._sheet_background())
         if frame.shot in self.animated:
             state.pictures[frame] = codes
@@ -802,7 +804,7 @@ class Batch:
         return {
             "variant": frame.variant, "shot": frame.shot, "frame": frame.index,
             "view": image.view, "path": path, "exr": exr_path, "key": state.keys[frame],
-            "seed": image.seed, "width": image.camera["width"],
+            "seed": image.seed, "albedo": image.albedo, "width": image.camera["width"],
             "height": image.camera["height"], "camera": image.camera,
             "timings": {"render_s": round(image.render_seconds, 4),
                         "encode_s": round(image.encode_seconds, 4),

@@ -48,6 +48,7 @@ class RenderedImage:
     render_seconds: float
     encode_seconds: float
     codes: object = None  # (h, w, 4) uint8 display codes when the task wants them
+    albedo: dict | None = None  # rendered and albedo luminance (shots.albedo.exposure_reading)
     derivatives: dict = field(default_factory=dict)  # derivative name → file bytes
     derive_seconds: float = 0.0
 
@@ -246,6 +247,7 @@ def _prepared_variant(loaded: dict, variant: str, result: TaskResult):
 
 
 def _render_one(prepared, frame, task: RenderTask) -> RenderedImage:
+    from shots.albedo import exposure_reading
     from shots.colour import display_codes
     from shots.output import encode_png
     from shots.render import render_frame
@@ -256,6 +258,7 @@ def _render_one(prepared, frame, task: RenderTask) -> RenderedImage:
     codes = display_codes(rgba, frame.look.exposure, frame.look.tone_map, task.bits)
     png = encode_png(codes)
     exr = exr_bytes(rgba) if task.exr else None
+    albedo = exposure_reading(prepared, frame.camera, rgba, frame.look.exposure)
     encoded = time.perf_counter()
     derivatives = make_derivatives(codes, derivatives_for(task.derivatives, frame.shot),
                                    task.metadata)
@@ -263,7 +266,7 @@ def _render_one(prepared, frame, task: RenderTask) -> RenderedImage:
         shot=frame.shot, index=frame.index, view=frame.view, camera=frame.to_json(),
         seed=frame.seed, png=png, exr=exr, render_seconds=rendered - start,
         encode_seconds=encoded - rendered,
-        codes=codes if task.wants_codes(frame.shot, frame.index) else None,
+        codes=codes if task.wants_codes(frame.shot, frame.index) else None, albedo=albedo,
         derivatives=derivatives, derive_seconds=time.perf_counter() - encoded,
     )
 

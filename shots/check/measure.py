@@ -32,11 +32,9 @@ from pathlib import Path
 import numpy as np
 from PIL import Image, UnidentifiedImageError
 
-from shots.colour import srgb_to_linear
+from shots.colour import LUMA_709, srgb_to_linear
 
 OFF_TINT = 0.02  # opaque: a shadow pixel is this close to a multiple of the background colour
-# BT.709 luminance weights of linear RGB (ITU-R BT.709-6, item 3.2)
-LUMA_709 = np.array([0.2126, 0.7152, 0.0722])
 
 
 @dataclass(frozen=True)
