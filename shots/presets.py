@@ -546,7 +546,7 @@ def builtin_preset_names() -> list[str]:
 
 SIDECAR_SUFFIX = ".shots.toml"
 # What a sidecar may not change: the batch's files and their names stay the house's.
-SIDECAR_FIXED = ("derivatives", "publish")
+SIDECAR_FIXED = ("derivatives", "publish", "check")
 
 
 def sidecar_for(model: str | Path) -> Path:
@@ -562,9 +562,9 @@ def load_preset(name_or_path: str | Path, sidecar: str | Path | None = None) -> 
     ----------
     name_or_path : a built-in preset name ("thumbnail") or the path of a TOML file.
     sidecar : a model's ``<model>.shots.toml`` (same schema, no ``extends``): its keys are
-        merged over the preset's. ``derivatives``, ``publish`` and the image size stay the
-        batch's, and its ``shots`` (a longer lens, another elevation) keep the batch's shot
-        names, kinds and frame counts, so every model's files are the same set.
+        merged over the preset's. ``derivatives``, ``publish``, ``check`` and the image size
+        stay the batch's, and its ``shots`` (a longer lens, another elevation) keep the batch's
+        shot names, kinds and frame counts, so every model's files are the same set.
 
     Raises
     ------
