@@ -14,12 +14,12 @@ from typing import Annotated
 
 import typer
 from rich.console import Console
-from rich.markup import escape
 from rich.table import Table
 
 from shots.batch.cli_command import batch
 from shots.cli_help import FLAG, ShotsCommand, ShotsGroup
 from shots.errors import ShotsError
+from shots.terminal import literal
 
 app = typer.Typer(
     cls=ShotsGroup,
@@ -33,13 +33,13 @@ out = Console()
 
 def fail(message: str, code: int = 2) -> None:
     """Print one line on stderr and exit with ``code``."""
-    err.print(f"[bold red]error:[/] {escape(message)}", highlight=False, soft_wrap=True)
+    err.print(f"[bold red]error:[/] {literal(message)}", highlight=False, soft_wrap=True)
     raise typer.Exit(code)
 
 
 def warn(message: str) -> None:
     """Print one warning line on stderr, unwrapped (a hint must stay greppable as one line)."""
-    err.print(f"[yellow]warning:[/] {escape(message)}", highlight=False, soft_wrap=True)
+    err.print(f"[yellow]warning:[/] {literal(message)}", highlight=False, soft_wrap=True)
 
 
 def parse_size(text: str | None) -> tuple[int, int] | None:
@@ -64,6 +64,9 @@ SceneOpt = Annotated[str | None, typer.Option(
 OutputOpt = Annotated[
     Path, typer.Option("--output", "-o", metavar="FOLDER", help="Output folder.")]
 QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", metavar=FLAG, help="No progress bars.")]
+LimitOpt = Annotated[list[str] | None, typer.Option(
+    "--limit", metavar="KEY=VALUE", help="Override a budget of the preset's [limits] "
+                                         "(repeatable).")]
 
 
 @app.command(cls=ShotsCommand)
@@ -77,24 +80,27 @@ def render(
     variant: Annotated[str | None, typer.Option(
         "--variant", metavar="VARIANT",
         help="KHR_materials_variants name to render; it joins the file name.")] = None,
+    limit: LimitOpt = None,
 ) -> None:
     """Render one model with a preset's shots (default: one three-quarter still)."""
+    from shots.limits import preset_with_limits
     from shots.pipeline import render_model
+    from shots.presets import load_preset
 
     try:
         written = render_model(
             model,
             output,
-            preset,
+            preset_with_limits(load_preset(preset), limit),
             size=parse_size(size),
             scene_choice=parse_scene(scene),
             variant=variant,
-            on_frame=lambda r: out.print(f"wrote {r.path}", highlight=False),
+            on_frame=lambda r: out.print(f"wrote {literal(r.path)}", highlight=False),
             on_warning=lambda text: warn(f"{model}: {text}"),
         )
     except ShotsError as exc:
         fail(str(exc))
-    out.print(f"{len(written)} image(s) in {output}", highlight=False)
+    out.print(f"{len(written)} image(s) in {literal(output)}", highlight=False)
 
 
 @app.command(cls=ShotsCommand)
@@ -110,28 +116,33 @@ def plan(
     scene: SceneOpt = None,
     shot: Annotated[list[str] | None, typer.Option(
         "--shot", metavar="SHOT", help="Plan only this shot (repeatable).")] = None,
+    limit: LimitOpt = None,
 ) -> None:
     """Print the camera of every frame a preset plans for a model, and draw the camera path."""
     from shots.gltf import load_scene
+    from shots.limits import preset_with_limits
     from shots.pathplot import write_path_picture
     from shots.planner import plan_frames
     from shots.presets import apply_model_fixes, load_preset
 
     picture = picture or Path(f"{model.stem}-plan.png")
     try:
-        chosen = load_preset(preset)
-        loaded = apply_model_fixes(load_scene(model, scene=parse_scene(scene)), chosen)
+        chosen = preset_with_limits(load_preset(preset), limit)
+        scene_model = load_scene(model, scene=parse_scene(scene), limits=chosen.limits)
+        loaded = apply_model_fixes(scene_model, chosen)
         frames = plan_frames(chosen, loaded, shots=shot or None)
         write_path_picture(frames, loaded, picture)
     except ShotsError as exc:
         fail(str(exc))
     rows = [frame.to_json() for frame in frames]
-    if as_json:
-        sys.stdout.write(json.dumps(rows, indent=1) + "\n")
+    if as_json:  # strict JSON: a non-finite number (never planned on purpose) becomes null
+        from shots.check.report import finite_or_null
+
+        sys.stdout.write(json.dumps(finite_or_null(rows), indent=1, allow_nan=False) + "\n")
         return
     for warning in loaded.warnings:
-        err.print(f"warning: {escape(warning)}", highlight=False)
-    table = Table(title=f"{preset} × {model.name}: {len(rows)} frames")
+        err.print(f"warning: {literal(warning)}", highlight=False)
+    table = Table(title=literal(f"{preset} × {model.name}: {len(rows)} frames"))
     for column in ("shot", "frame", "view", "eye", "target", "up", "lens", "size"):
         table.add_column(column)
     for row in rows:
@@ -141,7 +152,7 @@ def plan(
             fmt3(row["up"]), lens, f"{row['width']}x{row['height']}",
         )
     Console(width=max(out.width, 150)).print(table)
-    out.print(f"camera path picture: {picture}", highlight=False)
+    out.print(f"camera path picture: {literal(picture)}", highlight=False)
 
 
 @app.command(cls=ShotsCommand)
@@ -193,6 +204,7 @@ def check(
     as_json: Annotated[
         bool, typer.Option("--json", metavar=FLAG, help="Print the report as JSON on stdout.")
     ] = False,
+    limit: LimitOpt = None,
 ) -> None:
     """Measure every PNG render (framing, centring, background, light on the product, texture,
     orientation), compare variants and, given approved renders, those too; flag the odd ones.
@@ -202,6 +214,7 @@ def check(
     """
     from shots.check import check_renders
     from shots.check.report import report_json
+    from shots.limits import DEFAULT, with_overrides
     from shots.presets import check_settings, load_preset
 
     try:
@@ -209,18 +222,20 @@ def check(
         overrides = parse_tolerances(tolerance or [])
         tolerances = check_settings({**base, **overrides}, "--tolerance" if overrides else
                                     str(preset or "[check]"))
-        report = check_renders(renders, tolerances, against=against, shot=shot)
+        max_pixels = with_overrides(DEFAULT, limit).image_pixels
+        report = check_renders(renders, tolerances, against=against, shot=shot,
+                               max_pixels=max_pixels)
     except ShotsError as exc:
         fail(str(exc))
     if as_json:
         sys.stdout.write(report_json(report))
     else:
         for image, reasons in report.flagged:
-            out.print(f"[yellow]flagged[/] {escape(str(image))}: {escape('; '.join(reasons))}",
+            out.print(f"[yellow]flagged[/] {literal(image)}: {literal('; '.join(reasons))}",
                       highlight=False)
         out.print(f"{len(report.flagged)} of {len(report.images)} image(s) flagged; report in "
-                  f"{escape(str(report.markdown_path))}, review page "
-                  f"{escape(str(report.review_path))}", highlight=False)
+                  f"{literal(report.markdown_path)}, review page "
+                  f"{literal(report.review_path)}", highlight=False)
     raise typer.Exit(1 if report.flagged else 0)
 
 

@@ -20,6 +20,7 @@ naming the file that set the key, the key's path (``shots[1].frames``) and what 
 
 from __future__ import annotations
 
+import copy
 import difflib
 import importlib.resources
 import math
@@ -35,7 +36,6 @@ import numpy as np
 from annotated_types import Ge, Gt, Le, Lt
 from pydantic import (
     BaseModel,
-    ConfigDict,
     Field,
     PlainValidator,
     PrivateAttr,
@@ -48,8 +48,10 @@ from pydantic import (
 from shots.camera import Camera, horizontal_fov, yfov_from_xfov
 from shots.colour import TONE_MAPS
 from shots.errors import PresetError
+from shots.limits import Limits
 from shots.look import Background, Environment, Ground, Light, Look
 from shots.scene import Scene
+from shots.tables import Table
 
 # The built-in presets: presets/*.toml in a source checkout, this package once installed.
 BUILTIN_PACKAGE = "shots.preset_files"
@@ -97,12 +99,6 @@ def _camera_reference(value: object) -> str | int:
 
 
 CameraReference = Annotated[str | int, PlainValidator(_camera_reference)]
-
-
-class Table(BaseModel):
-    """A TOML table: unknown keys are errors, and a string is never read as a number."""
-
-    model_config = ConfigDict(extra="forbid", strict=True, frozen=True)
 
 
 class ImageSettings(Table):
@@ -479,6 +475,7 @@ class Preset(Table):
     derivatives: list[Derivative] = Field(default_factory=list, max_length=32)
     publish: PublishSettings = PublishSettings()
     check: CheckSettings = CheckSettings()
+    limits: Limits = Limits()  # per-model budgets (shots.limits); no effect on pixels
     _source: str = PrivateAttr("")
 
     @property
@@ -546,7 +543,7 @@ def builtin_preset_names() -> list[str]:
 
 SIDECAR_SUFFIX = ".shots.toml"
 # What a sidecar may not change: the batch's files and their names stay the house's.
-SIDECAR_FIXED = ("derivatives", "publish", "check")
+SIDECAR_FIXED = ("derivatives", "publish", "check", "limits")
 
 
 def sidecar_for(model: str | Path) -> Path:
@@ -562,8 +559,8 @@ def load_preset(name_or_path: str | Path, sidecar: str | Path | None = None) -> 
     ----------
     name_or_path : a built-in preset name ("thumbnail") or the path of a TOML file.
     sidecar : a model's ``<model>.shots.toml`` (same schema, no ``extends``): its keys are
-        merged over the preset's. ``derivatives``, ``publish``, ``check`` and the image size
-        stay the batch's, and its ``shots`` (a longer lens, another elevation) keep the batch's
+        merged over the preset's. ``derivatives``, ``publish``, ``check``, ``limits`` and the
+        image size stay the batch's, and its ``shots`` (a longer lens, another elevation) keep the batch's
         shot names, kinds and frame counts, so every model's files are the same set.
 
     Raises
@@ -571,7 +568,10 @@ def load_preset(name_or_path: str | Path, sidecar: str | Path | None = None) -> 
     PresetError : one line naming the file, the key path and what is allowed.
     """
     path = _locate(name_or_path)
-    data, origins = _read_merged(path, ())
+    try:
+        data, origins = _read_merged(path, (), {})
+    except RecursionError:
+        raise PresetError(path, None, "tables nested too deeply") from None
     if sidecar is not None:
         base = load_preset(path)
         _merge_sidecar(Path(sidecar), data, origins)
@@ -680,16 +680,34 @@ def _read_toml(path: Path) -> dict:
             return tomllib.load(handle)
     except tomllib.TOMLDecodeError as exc:
         raise PresetError(path, None, f"not valid TOML: {exc}") from None
+    except UnicodeDecodeError as exc:
+        raise PresetError(path, None, f"not UTF-8 text (byte {exc.start})") from None
+    except RecursionError:
+        raise PresetError(path, None, "not valid TOML: arrays or tables nested too deeply") \
+            from None
     except OSError as exc:
         raise PresetError(path, None, f"cannot read: {exc.strerror}") from None
 
 
-def _read_merged(path: Path, chain: tuple[Path, ...]) -> tuple[dict, dict]:
-    """A file's data merged over its parents', and which file set each table key."""
+MAX_EXTENDS_DEPTH = 16  # presets extending presets; deeper chains are refused
+
+
+def _read_merged(path: Path, chain: tuple[Path, ...], done: dict) -> tuple[dict, dict]:
+    """A file's data merged over its parents', and which file set each table key.
+
+    ``done`` keeps each file's merged result for this load, so a preset reached along many
+    ``extends`` paths (a diamond) is read and merged once, not once per path.
+    """
     here = path.resolve()
     if here in chain:
         loop = " → ".join(p.name for p in (*chain, here))
         raise PresetError(path, "extends", f"presets extend each other in a loop: {loop}")
+    if len(chain) >= MAX_EXTENDS_DEPTH:
+        raise PresetError(path, "extends", f"presets extend each other more than "
+                                           f"{MAX_EXTENDS_DEPTH} levels deep")
+    if here in done:
+        data, origins = done[here]
+        return copy.deepcopy(data), dict(origins)
     own = _read_toml(path)
     parents = own.pop("extends", [])
     if isinstance(parents, str):
@@ -700,9 +718,11 @@ def _read_merged(path: Path, chain: tuple[Path, ...]) -> tuple[dict, dict]:
     data: dict = {}
     origins: dict[tuple, str] = {}
     for reference in parents:
-        parent_data, parent_origins = _read_merged(_parent_path(reference, path), (*chain, here))
+        parent_data, parent_origins = _read_merged(_parent_path(reference, path), (*chain, here),
+                                                   done)
         _merge(data, origins, parent_data, parent_origins, ())
     _merge(data, origins, own, _origins_of(own, str(path), ()), ())
+    done[here] = (copy.deepcopy(data), dict(origins))
     return data, origins
 
 
@@ -856,6 +876,8 @@ def _explain(error: dict) -> tuple[str | None, str]:
     if kind in BOUND_WORDS:
         limit = next(iter(ctx.values()))
         return shown, f"must be {BOUND_WORDS[kind]} {limit}, got {_describe(value, bare=True)}"
+    if kind == "finite_number":
+        return shown, f"must be a finite number, got {_describe(value, bare=True)}"
     if kind == "string_pattern_mismatch":
         return shown, f"use only letters, digits, '-' and '_', got {value!r}"
     if kind == "too_short":

@@ -49,10 +49,20 @@ def model_hashes(path: Path) -> tuple[str, str]:
     combined = hashlib.sha256(file_hash.encode())
     folder = path.parent.resolve()
     for uri in sorted(_external_uris(path)):
-        target = (folder / unquote(uri)).resolve()
-        inside = target.is_relative_to(folder) and target.is_file()
-        combined.update(f"\n{uri}\n{sha256_file(target) if inside else 'missing'}".encode())
+        combined.update(f"\n{uri}\n{_resource_hash(folder, uri)}".encode())
     return file_hash, combined.hexdigest()
+
+
+def _resource_hash(folder: Path, uri: str) -> str:
+    """SHA-256 of a referenced file inside ``folder``, else "missing" (the loader says why:
+    a NUL once decoded, a symlink loop, a path leaving the folder)."""
+    try:
+        target = (folder / unquote(uri)).resolve()
+        if target.is_relative_to(folder) and target.is_file():
+            return sha256_file(target)
+    except (OSError, ValueError, RuntimeError):
+        pass
+    return "missing"
 
 
 def _external_uris(path: Path) -> set[str]:
@@ -83,13 +93,13 @@ def _external_uris(path: Path) -> set[str]:
 def preset_sha256(preset: Preset) -> str:
     """SHA-256 of the resolved preset as canonical JSON (sorted keys, no spaces).
 
-    The description, the check's tolerances, derivatives and publishing settings are left out
-    (they change no pixel of a master frame: derivatives have keys of their own); an
-    environment image is represented by its content hash rather than its path, so moving the
-    preset does not re-render a catalog.
+    The description, the check's tolerances, the limits, derivatives and publishing settings
+    are left out (they change no pixel of a master frame: derivatives have keys of their own);
+    an environment image is represented by its content hash rather than its path, so moving
+    the preset does not re-render a catalog.
     """
     data = preset.model_dump(mode="json")
-    for key in ("description", "check", "derivatives", "publish"):
+    for key in ("description", "check", "limits", "derivatives", "publish"):
         data.pop(key, None)
     image = data.get("environment", {}).get("image")
     if image:

@@ -180,7 +180,7 @@ class Layout:
         if not target.is_relative_to(self.out_dir) or target == self.out_dir:
             raise BatchError(source, where, f"{relative!r} leaves the output folder")
         posix = "/".join(parts)
-        if posix in RESERVED or parts[0] in (MANIFEST_FOLDER, DIFFERENCES_FOLDER):
+        if parts[0] in RESERVED or parts[0] in (MANIFEST_FOLDER, DIFFERENCES_FOLDER):
             raise BatchError(source, where, f"{posix!r} is where the batch keeps its own files")
         return posix
 

@@ -135,31 +135,32 @@ def _calibrate(batch, preview: BatchPreview) -> None:
 
 def print_preview(preview: BatchPreview, console) -> None:
     """The dry run as a table, totals and the estimate (user text shown literally)."""
-    from rich.markup import escape
     from rich.table import Table
+
+    from shots.terminal import literal
 
     table = Table(title=f"dry run: {len(preview.models)} model(s), nothing written")
     for column in ("model", "variants", "render", "skip", "derivatives", "sidecar"):
         table.add_column(column, justify="right" if column in ("render", "skip",
                                                                "derivatives") else "left")
     for model in preview.models:
-        table.add_row(escape(model.listed_as), escape(", ".join(model.variants) or "-"),
+        table.add_row(literal(model.listed_as), literal(", ".join(model.variants) or "-"),
                       str(model.render), str(model.skip), str(model.derivatives),
-                      escape(model.sidecar or "-"))
+                      literal(model.sidecar or "-"))
     table.add_row("total", "", str(preview.frames_to_render), str(preview.frames_to_skip),
                   str(preview.derivatives_to_make), "", end_section=True)
     console.print(table)
     for note in preview.notes:
-        console.print(escape(note), highlight=False, soft_wrap=True)
+        console.print(literal(note), highlight=False, soft_wrap=True)
     for model in preview.models:
         if model.error:
-            console.print(f"[bold red]would fail:[/] {escape(model.listed_as)}: "
-                          f"{escape(model.error)}", highlight=False, soft_wrap=True)
+            console.print(f"[bold red]would fail:[/] {literal(model.listed_as)}: "
+                          f"{literal(model.error)}", highlight=False, soft_wrap=True)
     estimate = preview.estimate_seconds
     if not preview.frames_to_render and not preview.derivatives_to_make:
         console.print("nothing to render or publish: every file is up to date", highlight=False)
     elif estimate is not None:
-        basis = (f"; {preview.seconds_per_frame:.2f} s a frame from {escape(preview.calibrated_on)}"
+        basis = (f"; {preview.seconds_per_frame:.2f} s a frame from {literal(preview.calibrated_on)}"
                  if preview.seconds_per_frame is not None else "")
         console.print(f"estimate: about {_duration(estimate)} on this machine{basis}",
                       highlight=False, soft_wrap=True)

@@ -117,7 +117,7 @@ def report_json(report: CheckReport) -> str:
         "approved_folder": str(report.against) if report.against else None,
         "images": [image_entry(image) for image in report.images],
     }
-    return json.dumps(_finite(document), indent=2, ensure_ascii=False) + "\n"
+    return json.dumps(finite_or_null(document), indent=2, ensure_ascii=False) + "\n"
 
 
 def image_entry(image: ImageCheck) -> dict:
@@ -139,14 +139,14 @@ def image_entry(image: ImageCheck) -> dict:
     }
 
 
-def _finite(value):
+def finite_or_null(value):
     """JSON has no NaN or infinity: such numbers become null; tuples become lists."""
     if isinstance(value, float):
         return value if math.isfinite(value) else None
     if isinstance(value, dict):
-        return {key: _finite(item) for key, item in value.items()}
+        return {key: finite_or_null(item) for key, item in value.items()}
     if isinstance(value, list | tuple):
-        return [_finite(item) for item in value]
+        return [finite_or_null(item) for item in value]
     return value
 
 

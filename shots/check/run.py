@@ -32,6 +32,7 @@ from shots.check.report import (
 )
 from shots.check.review import review_html
 from shots.errors import BatchError
+from shots.limits import DEFAULT
 from shots.output import atomic_write_bytes
 from shots.presets import check_settings
 
@@ -53,6 +54,7 @@ def check_renders(
     measured: Mapping[Path, Measurement] | None = None,
     against: str | os.PathLike | None = None,
     shot: str | None = None,
+    max_pixels: int = DEFAULT.image_pixels,
 ) -> CheckReport:
     """Measure every PNG image, flag the ones that do not match the catalog (or their approved
     images), write report.md, report.json and review.html.
@@ -71,6 +73,7 @@ def check_renders(
         approved one of the same model, variant, shot and frame (``shots.check.baseline``).
     shot : only the images of this shot, by the batch manifests (images without a manifest:
         by a path component or a file name ending in ``-<shot>``).
+    max_pixels : an image declaring more pixels is flagged unreadable, never decoded.
 
     Returns
     -------
@@ -95,7 +98,7 @@ def check_renders(
         if not images:
             raise BatchError(", ".join(str(s) for s in sources), None,
                              f"no images of shot {shot!r}")
-    report = judge_images(images, folder, tolerances, measured, records)
+    report = judge_images(images, folder, tolerances, measured, records, max_pixels)
     if against is not None:
         report = compare_with_approved(report, Path(against), folder / DIFFERENCES)
     paths = {name: folder / name for name in (REPORT_MD, REPORT_JSON, REVIEW_HTML)}
@@ -107,7 +110,8 @@ def check_renders(
 
 def judge_images(images: list[Path], folder: Path, tolerances: Tolerances,
                  known: Mapping[Path, Measurement] | None = None,
-                 records: Mapping[Path, FrameRecord] | None = None) -> CheckReport:
+                 records: Mapping[Path, FrameRecord] | None = None,
+                 max_pixels: int = DEFAULT.image_pixels) -> CheckReport:
     """Measure ``images`` (those not in ``known``) and judge each against the others and against
     its model's variants (``records``: frame records by resolved path); nothing is written."""
     rules = mask_rules(tolerances)
@@ -118,7 +122,7 @@ def judge_images(images: list[Path], folder: Path, tolerances: Tolerances,
             measured[path] = known[path]
             continue
         try:
-            measured[path] = measure_image(path, rules)
+            measured[path] = measure_image(path, rules, max_pixels)
         except (OSError, ValueError) as exc:
             unreadable[path] = f"cannot read the image: {exc}"
     mine = {path: records.get(path.resolve()) for path in images}
