@@ -98,6 +98,7 @@ def test_sidecar_is_merged_recorded_and_rerenders_only_its_model(tmp_path):
     ('extends = "hero"\n', "extends", "a sidecar cannot set this"),
     ('[publish]\ncopyright = "x"\n', "publish", "a sidecar cannot set this"),
     ("[check]\nfill = 0.5\n", "check", "a sidecar cannot set this"),
+    ("[limits]\ntriangles = 5\n", "limits", "a sidecar cannot set this"),
     ('[[shots]]\nname = "spin"\nkind = "turntable"\n', "shots[0]", "must keep the preset's shot"),
 ])
 def test_broken_sidecars_stop_the_batch_naming_the_sidecar(tmp_path, text, field, words):
