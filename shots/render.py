@@ -102,7 +102,7 @@ def pack_scene(scene: Scene) -> tuple:
     Returns
     -------
     verts : (v, N_VERT) float32; faces : (n, 4) int32; materials : (m, N_MAT) float32;
-    texels : (k, 4) float32; tex_info : (t, N_TEX_INFO) int32.
+    texels : (k,) uint8; tex_info : (t, N_TEX_INFO) int32.
     """
     v = len(scene.positions)
     verts = np.zeros((v, layout.N_VERT), np.float32)
@@ -124,7 +124,7 @@ def pack_scene(scene: Scene) -> tuple:
     slots[:, :, layout.SLOT_TEX] = table.texture
     slots[:, :, layout.SLOT_SET] = table.texcoord
     slots[:, :, layout.SLOT_A :] = np.asarray(table.uv_transform).reshape(m, N_SLOTS, 6)
-    texels = np.ascontiguousarray(scene.textures.texels, np.float32).reshape(-1, 4)
+    texels = np.ascontiguousarray(scene.textures.texels, np.uint8).reshape(-1)
     tex_info = np.ascontiguousarray(scene.textures.info, np.int32).reshape(-1, N_TEX_INFO)
     return verts, faces, materials, texels, tex_info
 
