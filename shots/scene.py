@@ -151,6 +151,13 @@ class Textures:
     info: np.ndarray = field(default_factory=lambda: np.zeros((0, N_TEX_INFO), np.int32))
     names: tuple[str, ...] = ()
 
+    def with_min_filter(self, code: int) -> Textures:
+        """The same textures with every sampler's minFilter set to ``code``; FILTER_LINEAR
+        reads only full-size texels, which plain supersampling turns into a reference."""
+        info = self.info.copy()
+        info[:, TI_MIN_FILTER] = code
+        return replace(self, info=info)
+
 
 @dataclass(frozen=True)
 class FileCamera:

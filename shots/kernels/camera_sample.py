@@ -130,9 +130,12 @@ def pixel_cone(frame):
 
     A perspective pixel subtends α = atan(2 tan(yfov/2) / height) (Akenine-Möller et al. 2019,
     Ray Tracing Gems ch. 20, "pixel spread angle"); an orthographic pixel is a tube 2·ymag/height
-    wide.
+    wide. Each of the pixel's N stratified samples stands for 1/N of its area, so its cone is
+    1/√N of the pixel across: the samples together then average the texture over the pixel
+    filter once, and many samples converge to plain supersampling instead of blurring twice
+    (measured on the demo sofa in bench/texture_filtering.py).
     """
-    height = frame[F_HEIGHT]
+    height = frame[F_HEIGHT] * math.sqrt(max(frame[F_SAMPLES], 1.0))
     if frame[F_ORTHO] != 0.0:
         return 2.0 * frame[F_YMAG] / height, 0.0
     return 0.0, math.atan(2.0 * frame[F_TAN_Y] / height)
