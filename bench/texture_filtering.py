@@ -35,7 +35,7 @@ from shots.render import prepare_scene, render_frame
 from shots.scene import FILTER_LINEAR
 
 ROOT = Path(__file__).resolve().parents[1]
-SOFA = ROOT / "assets_demo" / "tavlund_mosse_sofa.glb"
+SOFA = ROOT / "assets_demo" / "wool_sofa.glb"
 
 
 def codes(image, look):

@@ -346,7 +346,7 @@ def test_prefiltering_brings_16_samples_closer_to_the_converged_sofa():
     # prefiltered frame must be clearly closer to it (RMSE in 8-bit display codes over the
     # product's pixels) than point lookups, the renderer's behaviour before mip levels
     preset = load_preset("thumbnail")
-    scene = apply_model_fixes(load_scene(DEMO / "tavlund_mosse_sofa.glb"), preset)
+    scene = apply_model_fixes(load_scene(DEMO / "wool_sofa.glb"), preset)
     frame = plan_frames(preset, scene)[0]
     camera = dataclasses.replace(frame.camera, width=128, height=128)
     point = prepare_scene(dataclasses.replace(

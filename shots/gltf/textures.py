@@ -1,8 +1,9 @@
 """Images and samplers into the flat texture atlas (Spec §Textures, §Images, §Samplers).
 
-Images are sniffed by magic number, decoded with Pillow (pypng for 16-bit PNGs, which Pillow
-reduces to 8 bits) and stored as they are coded: 8-bit (or 16-bit) channel values, 1 to 4
-channels, texel row 0 = the image's top row, so uv (0, 0) is the top-left corner (Spec §Images).
+Images are sniffed by magic number (PNG: ISO/IEC 15948 §5.2; JPEG: FF D8 FF), decoded with
+Pillow (pypng for 16-bit PNGs, which Pillow reduces to 8 bits) and stored as they are coded:
+8-bit (or 16-bit) channel values, 1 to 4 channels, texel row 0 = the image's top row, so uv
+(0, 0) is the top-left corner (Spec §Images).
 The kernels decode on lookup (colour textures through the sRGB curve, IEC 61966-2-1). Each
 (image, colour space) is stored once with its mip pyramid (``shots.mipmap``, filtered in linear
 light), however many textures and material slots use it.
