@@ -27,6 +27,14 @@ from shots.colour import display_codes
 from shots.errors import GltfError
 from shots.gltf import load_scene
 from shots.gltf.textures import textures_from_codes
+from shots.kernels.raystack import (
+    N_RAY,
+    R_CONE,
+    R_CONE_HIT,
+    R_SPREAD,
+    STACK_RAYS,
+    push_ray,
+)
 from shots.kernels.texture import sample_texture
 from shots.planner import plan_frames
 from shots.presets import apply_model_fixes, load_preset
@@ -367,3 +375,18 @@ def test_prefiltering_brings_16_samples_closer_to_the_converged_sofa():
 
     before, after = rmse(codes(point, 16)), rmse(codes(filtered, 16))
     assert after < 0.9 * before, (before, after)
+
+
+def test_spawned_rays_start_with_the_cone_width_at_the_hit():
+    # Ray cones (Akenine-Möller et al. 2019): the width grows linearly, w(t) = w0 + γ·t, and a
+    # ray spawned at a hit starts with the parent's width there and keeps its spread (flat
+    # surface, β = 0); a continuation from the same origin (tmin > 0) keeps w0
+    stack = np.zeros((STACK_RAYS, N_RAY))
+    current = stack[STACK_RAYS - 1]
+    current[R_CONE], current[R_SPREAD] = 0.01, 0.002
+    current[R_CONE_HIT] = 0.01 + 0.002 * 5.0  # as the tracer sets it after a hit at t = 5
+    sp = push_ray(stack, 0, 0, 0, 0, 0, 0, 1, 1, 1, 1, 0.0, 1, 0.0, 0, 0, 0, 0.0)
+    sp = push_ray(stack, sp, 0, 0, 0, 0, 0, 1, 1, 1, 1, 1.0, 0, 5.0, 0, 0, 0, 1.0)
+    assert sp == 2
+    assert stack[0, R_CONE] == pytest.approx(0.02) and stack[0, R_SPREAD] == 0.002
+    assert stack[1, R_CONE] == 0.01 and stack[1, R_SPREAD] == 0.002
