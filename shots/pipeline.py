@@ -69,7 +69,7 @@ def render_model(
         preset = load_preset(preset)
     if size is not None:
         preset = preset.with_image_size(*size)
-    loaded = load_scene(model, scene=scene_choice)
+    loaded = load_scene(model, scene=scene_choice, limits=preset.limits)
     hints = model_hints(loaded) if preset.model.units == "m" and preset.model.up_axis == "y" else []
     scene = apply_model_fixes(loaded, preset)
     if on_warning is not None:

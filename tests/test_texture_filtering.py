@@ -334,16 +334,19 @@ def huge_png_header(width: int, height: int) -> bytes:
 
 
 def test_decoded_bytes_budget_is_checked_from_headers(tmp_path):
-    # a 16384² RGBA image with its mip levels needs 16384²·4·4/3 ≈ 1.4 GB: refused from its
-    # header alone, before any decoding, with one line naming the image
+    # a 13000² RGBA image with its mip levels needs 13000²·4·4/3 = 859 MiB, over the default
+    # budget: refused from its header alone (its pixel data is never read),
+    # with one line naming the texture and its image
     b = GltfBuilder()
-    view = b.view(huge_png_header(16384, 16384))
+    view = b.view(huge_png_header(13000, 13000))
     image = b._add("images", {"bufferView": view, "mimeType": "image/png"})
     tex = b._add("textures", {"source": image})
     with pytest.raises(GltfError) as caught:
         load_with(tmp_path, {"pbrMetallicRoughness": {"baseColorTexture": {"index": tex}}}, b)
+    assert caught.value.field == "textures[0]"
     message = str(caught.value)
-    assert "images[0]" in message and "budget" in message and "\n" not in message
+    assert "images[0] is 13000x13000" in message and "over the limit texture_mb" in message
+    assert "\n" not in message
 
 
 # --- a whole frame: the demo sofa's plain-weave normal map, minified in a thumbnail ---------------

@@ -24,6 +24,7 @@ from PIL import Image
 from shots import mipmap
 from shots.gltf import checks
 from shots.gltf.container import Document
+from shots.limits import DEFAULT
 from shots.scene import (
     FILTER_LINEAR,
     FILTER_NEAREST,
@@ -54,7 +55,6 @@ WRAPS = (WRAP_REPEAT, WRAP_CLAMP, WRAP_MIRROR)
 MIN_FILTERS = (FILTER_NEAREST, FILTER_LINEAR, NEAREST_MIPMAP_NEAREST, LINEAR_MIPMAP_NEAREST,
                NEAREST_MIPMAP_LINEAR, LINEAR_MIPMAP_LINEAR)  # fmt: skip
 FORMATS = {b"\x89PNG\r\n\x1a\n": "PNG", b"\xff\xd8\xff": "JPEG"}
-MAX_TEXTURE_BYTES = 768 * 2**20  # decoded texels of one model, mip levels included
 PILLOW_MODES = {1: "L", 2: "LA", 3: "RGB", 4: "RGBA"}  # what each channel count is decoded to
 STRIP_ROWS = 256  # rows copied at a time from Pillow's decoded image
 
@@ -62,7 +62,7 @@ STRIP_ROWS = 256  # rows copied at a time from Pillow's decoded image
 class TextureAtlas:
     """Decodes the textures materials use, once per (image, colour space)."""
 
-    def __init__(self, doc: Document, max_pixels: int, max_bytes: int = MAX_TEXTURE_BYTES):
+    def __init__(self, doc: Document, max_pixels: int, max_bytes: int = DEFAULT.texture_bytes):
         self.doc = doc
         self.max_pixels = max_pixels
         self.max_bytes = min(max_bytes, 2**31 - 1)  # byte offsets are int32
@@ -127,7 +127,7 @@ class TextureAtlas:
         image, data = self._open(image_index)
         width, height = image.size
         channels, depth = self._format(image_index, image, data)
-        offset = self._store(image_index, srgb, width, height, channels, depth)
+        offset = self._store(image_index, srgb, width, height, channels, depth, where)
         sampler = self._sampler(tex.sampler, where)
         row = info_row(width, height, channels, depth, srgb, sampler, offset)
         self._info.append(row)
@@ -137,18 +137,22 @@ class TextureAtlas:
         self._names.append(str(image.name or uri or f"images[{image_index}]"))
         return len(self._info) - 1
 
-    def _store(self, i: int, srgb: bool, width: int, height: int, channels: int,
-               depth: int) -> int:  # fmt: skip
-        """Byte offset reserved for images[i]'s pyramid in one colour space, budget checked."""
+    def _store(self, i: int, srgb: bool, width: int, height: int, channels: int, depth: int,
+               where: str) -> int:  # fmt: skip
+        """Byte offset reserved for images[i]'s pyramid in one colour space.
+
+        The budget (``shots.limits``, texture_mb) counts what is stored: every level, each
+        (image, colour space) once, from the sizes in the image headers, before any decoding.
+        """
         key = (i, srgb)
         if key not in self._stores:
             size = mipmap.pyramid_bytes(width, height, channels, depth)
             if self._bytes + size > self.max_bytes:
                 raise self.doc.error(
-                    f"images[{i}]",
-                    f"decoded textures would exceed the budget of {self.max_bytes >> 20} MiB "
-                    f"(this image: {width}x{height}, {channels} channels, {8 * depth}-bit, "
-                    f"{size / 2**20:.0f} MiB with mip levels)",
+                    where,
+                    f"decoded textures would take {(self._bytes + size) >> 20} MiB with mip "
+                    f"levels (images[{i}] is {width}x{height}, {channels} channels, "
+                    f"{8 * depth}-bit), over the limit texture_mb {self.max_bytes >> 20}",
                 )
             self._stores[key] = self._bytes
             self._bytes += -(-size // 4) * 4  # keep every pyramid 4-byte aligned (16-bit views)
