@@ -50,6 +50,13 @@ def parse_size(text: str | None) -> tuple[int, int] | None:
     return int(match.group(1)), int(match.group(2))
 
 
+def parse_samples(count: int | None) -> int | None:
+    """--samples N: a forced count of camera samples per pixel, 1 to 4096."""
+    if count is not None and not 1 <= count <= 4096:
+        fail(f"--samples: expected a count between 1 and 4096, got {count}")
+    return count
+
+
 def parse_scene(text: str | None) -> int | str | None:
     return int(text) if text is not None and text.isdigit() else text
 
@@ -68,6 +75,10 @@ def render(
     model: ModelArg,
     output: Annotated[Path, typer.Option("--output", "-o", help="Output folder.")] = Path("renders"),
     size: Annotated[str | None, typer.Option("--size", help="Image size WIDTHxHEIGHT.")] = None,
+    samples: Annotated[
+        int | None,
+        typer.Option("--samples", help="Exactly N camera samples per pixel (adaptive off)."),
+    ] = None,
     preset: PresetOpt = "still",
     scene: SceneOpt = None,
     variant: Annotated[
@@ -83,6 +94,7 @@ def render(
             output,
             preset,
             size=parse_size(size),
+            samples=parse_samples(samples),
             scene_choice=parse_scene(scene),
             variant=variant,
             on_frame=lambda r: out.print(f"wrote {r.path}", highlight=False),

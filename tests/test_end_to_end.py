@@ -110,7 +110,8 @@ def test_box_silhouette_matches_its_projection(tmp_path):
     assert image[mask][:, :3].mean() > 20
 
 
-@pytest.mark.parametrize("args", [["render", "missing.glb"], ["render", "x.gltf", "--size", "0x5"]])
+@pytest.mark.parametrize("args", [["render", "missing.glb"], ["render", "x.gltf", "--size", "0x5"],
+                                  ["render", "x.gltf", "--samples", "0"]])
 def test_bad_input_is_one_line_exit_2(tmp_path, args):
     result = runner.invoke(app, args + ["-o", str(tmp_path)])
     assert result.exit_code == 2
