@@ -9,11 +9,11 @@ from shots.camera import Camera
 from shots.look import Environment, Light
 from shots.render import prepare_scene, render_frame_counted
 from shots.sampling_control import (
-    PASS_SAMPLES,
     display_error,
-    needs_more,
+    next_set_size,
     pass_seed,
     render_adaptive,
+    smoothed_square,
     standard_error,
 )
 
@@ -21,23 +21,28 @@ LIGHT = Light("area", intensity=3.0, position=(1, 2, 2), direction=(-1, -2, -2),
               edge_u=(0.5, 0, 0), edge_v=(0, 0.5, 0))  # fmt: skip
 
 
-def pass_statistics(samples: np.ndarray):
-    """(mean, mean square, passes) of the pass means of (pixels, n) sample streams."""
-    means = samples.reshape(len(samples), -1, PASS_SAMPLES).mean(axis=2)
-    return means.mean(axis=1), (means * means).mean(axis=1), means.shape[1]
+def set_sums(samples: np.ndarray, sizes):
+    """(Σ n_k m_k, Σ n_k m_k², n, K) of (pixels, n) sample streams cut into sets of ``sizes``."""
+    edges = np.cumsum([0, *sizes])
+    means = np.stack([samples[:, a:b].mean(axis=1) for a, b in zip(edges[:-1], edges[1:], strict=True)],
+                     axis=1)  # fmt: skip
+    weights = np.asarray(sizes, np.float64)
+    return means @ weights, (means * means) @ weights, float(edges[-1]), len(sizes)
 
 
-@pytest.mark.parametrize("n", [8, 16, 64])
-def test_standard_error_of_known_streams_is_sigma_over_root_n(n):
-    # Standard error of a mean of n independent samples is σ/√n, and the Bessel-corrected
-    # variance is unbiased (any statistics text); here its mean over many pixels.
+@pytest.mark.parametrize("sizes", [(4, 4), (4, 4, 16), (4, 4, 25, 9), (4, 4, 4, 4)])
+def test_standard_error_of_known_streams_is_sigma_over_root_n(sizes):
+    # Standard error of a mean of n independent samples is σ/√n; the between-groups mean square
+    # of a one-way analysis of variance is an unbiased estimate of σ² for groups of any sizes
+    # (any statistics text). Here its mean over many pixels.
     sigma = 0.3
-    rng = np.random.default_rng(n)
-    streams = rng.normal(0.5, sigma, (40_000, n))
-    se = standard_error(*pass_statistics(streams))
-    passes = n // PASS_SAMPLES
-    # the mean of s² over M pixels has relative spread sqrt(2 / ((passes − 1) M)) (chi-square)
-    spread = np.sqrt(2.0 / ((passes - 1) * len(se)))
+    rng = np.random.default_rng(len(sizes) + sum(sizes))
+    streams = rng.normal(0.5, sigma, (40_000, sum(sizes)))
+    total, squares, n, sets = set_sums(streams, sizes)
+    se = standard_error(total, squares, n, sets)
+    # the mean of a K−1 degree-of-freedom estimate over M pixels has relative spread
+    # sqrt(2 / ((K − 1) M)) (chi-square)
+    spread = np.sqrt(2.0 / ((sets - 1) * len(se)))
     assert abs(np.mean(se**2) / (sigma**2 / n) - 1.0) < 5 * spread
 
 
@@ -45,28 +50,29 @@ def test_display_error_follows_the_srgb_slope():
     # IEC 61966-2-1 §5.2: code = 255 (1.055 x^(1/2.4) − 0.055), slope 255·1.055/2.4·x^(1/2.4 − 1);
     # a small standard error maps to codes through that slope (no tone map, opaque pixel)
     x, se = 0.2, 1e-4
-    mean = np.array([[x, x, x, 1.0]])
-    passes = 2  # standard_error = sqrt((ms − m²) / (passes − 1)): pick ms so that it is se
-    mean_square = mean * mean + se * se
-    mean_square[:, 3] = 1.0
-    error = display_error(mean, mean_square, passes, 0.0, "none")
+    error = display_error(np.array([[x, x, x, 1.0]]), np.array([[se, se, se, 0.0]]), 0.0, "none")
     slope = 255.0 * 1.055 / 2.4 * x ** (1.0 / 2.4 - 1.0)
     assert error[0] == pytest.approx(slope * se, rel=1e-3)
 
 
 def test_alpha_error_is_in_codes_of_coverage():
-    mean = np.array([[0.0, 0.0, 0.0, 0.5]])  # black with half coverage: only alpha varies
-    se = 0.01
-    mean_square = mean * mean
-    mean_square[:, 3] += se * se  # two passes: se² = ms − m²
-    assert display_error(mean, mean_square, 2, 0.0, "none")[0] == pytest.approx(255 * se)
+    # black with half coverage: only alpha varies, 255 codes = fully opaque
+    error = display_error(np.array([[0.0, 0.0, 0.0, 0.5]]), np.array([[0.0, 0.0, 0.0, 0.01]]),
+                          0.0, "none")  # fmt: skip
+    assert error[0] == pytest.approx(255 * 0.01)
 
 
 def test_a_lucky_pixel_does_not_stop_alone():
     error = np.full((5, 5), 3.0)
-    error[2, 2] = 0.0  # its own passes agreed by chance
-    assert needs_more(error, 1.0)[2, 2]
-    assert not needs_more(np.full((5, 5), 0.5), 1.0).any()
+    error[2, 2] = 0.0  # its own sets agreed by chance
+    assert smoothed_square(error)[2, 2] == pytest.approx(9.0 * 8 / 9)
+    assert np.all(smoothed_square(np.full((5, 5), 0.5)) == 0.25)
+
+
+def test_next_sets_are_square_and_fit_the_room():
+    short = np.array([0, 1, 5, 24, 30, 100, 100])
+    room = np.array([50, 50, 50, 50, 50, 50, 3])
+    assert next_set_size(short, room).tolist() == [0, 4, 9, 25, 36, 49, 0]
 
 
 def synthetic_runner(sigma_codes: np.ndarray):
@@ -99,7 +105,7 @@ def test_stop_rule_on_streams_of_known_variance():
     # the error left is about the target (one standard error)
     left = 255.0 * (rgba[:, 11:19, 3] - 0.5)
     assert 0.5 * target < np.sqrt(np.mean(left**2)) < 1.5 * target
-    assert np.all(counts % PASS_SAMPLES == 0)
+    assert counts.min() >= 8 and counts.max() <= 128
 
 
 def test_pass_seeds_differ_and_the_first_is_the_frame_seed():
