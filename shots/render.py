@@ -299,6 +299,7 @@ def render_frame_counted(
         out, counts = sampling_control.render_adaptive(
             run_pass, shape, seed, look.noise_target, look.min_samples, look.max_samples,
             look.exposure, look.tone_map,
+            SHADOW_NOISE_FLOOR if look.ground.kind == "shadow_catcher" else 0.0,
         )  # fmt: skip
     if look.ground.kind == "shadow_catcher":
         lift_shadow_noise_floor(out)

@@ -87,8 +87,12 @@ def render_adaptive(
     max_samples: int,
     exposure: float = 0.0,
     tone_map: str = "neutral",
+    shadow_floor: float = 0.0,
 ):
     """Stratified sets until each pixel's estimated error is under ``noise_target`` codes.
+
+    ``shadow_floor``: the shadow-catcher alpha that ``shots.render.lift_shadow_noise_floor`` will
+    remove from pure-shadow pixels (0 without a catcher); error below it is not shown.
 
     Returns (rgba (h, w, 4) float32 premultiplied linear, counts (h, w) int32 samples per pixel).
     """
@@ -109,7 +113,7 @@ def render_adaptive(
         n = counts[on].astype(np.float64)[:, None]
         mean = sums.total[on] / n
         se = standard_error(sums.total[on], sums.squares[on], n, sums.sets[on][:, None])
-        error[on] = display_error(mean, se, exposure, tone_map)
+        error[on] = display_error(mean, se, exposure, tone_map, shadow_floor)
         needed = np.where(on, np.ceil(counts * smoothed_square(error) / noise_target**2), 0)
         needed = np.clip(np.maximum(needed, min_samples), 0, max_samples)
         plan = np.where(sums.sets < 2, PILOT_SAMPLES, next_set_size(needed - counts,
@@ -137,10 +141,12 @@ def standard_error(total, squares, samples, sets) -> np.ndarray:
     return np.sqrt(variance / samples)
 
 
-def display_error(mean: np.ndarray, se: np.ndarray, exposure: float, tone_map: str) -> np.ndarray:
+def display_error(
+    mean: np.ndarray, se: np.ndarray, exposure: float, tone_map: str, shadow_floor: float = 0.0
+) -> np.ndarray:
     """(n,) estimated error in 8-bit display codes of n pixels' (n, 4) premultiplied means with
     standard errors ``se``: the largest of the colour channels as shown over black (display
-    colour × alpha) and alpha."""
+    colour × alpha) and alpha (of a colourless pixel, after the shadow floor is lifted)."""
     high, low = mean.copy(), mean.copy()
     high[:, :3] += se[:, :3]
     low[:, :3] = np.maximum(low[:, :3] - se[:, :3], 0.0)
@@ -148,7 +154,17 @@ def display_error(mean: np.ndarray, se: np.ndarray, exposure: float, tone_map: s
     display = to_display(both, exposure, tone_map)
     shown = display[..., :3] * display[..., 3:]
     colour = 0.5 * np.abs(shown[:, 0] - shown[:, 1]).max(axis=1)
-    return CODES * np.maximum(colour, se[:, 3])
+    alpha = se[:, 3].copy()
+    if shadow_floor > 0.0:
+        shadow = mean[:, :3].max(axis=1) <= 0.0
+        a, d = mean[shadow, 3], se[shadow, 3]
+        alpha[shadow] = 0.5 * (lift(a + d, shadow_floor) - lift(a - d, shadow_floor))
+    return CODES * np.maximum(colour, alpha)
+
+
+def lift(alpha: np.ndarray, floor: float) -> np.ndarray:
+    """Shadow-catcher alpha after its noise floor is removed (as ``lift_shadow_noise_floor``)."""
+    return np.clip((alpha - floor) / (1.0 - floor), 0.0, 1.0)
 
 
 def smoothed_square(error: np.ndarray) -> np.ndarray:

@@ -62,6 +62,15 @@ def test_alpha_error_is_in_codes_of_coverage():
     assert error[0] == pytest.approx(255 * 0.01)
 
 
+def test_shadow_below_the_noise_floor_shows_no_error():
+    # a pure-shadow pixel whose alpha stays under the floor is lifted to 0 whatever its noise;
+    # above it, the lift scales alpha by 1 / (1 − floor)
+    se = np.array([[0.0, 0.0, 0.0, 0.01]] * 2)
+    mean = np.array([[0.0, 0.0, 0.0, 0.02], [0.0, 0.0, 0.0, 0.5]])
+    error = display_error(mean, se, 0.0, "none", shadow_floor=0.05)
+    assert error[0] == 0.0 and error[1] == pytest.approx(255 * 0.01 / 0.95)
+
+
 def test_a_lucky_pixel_does_not_stop_alone():
     error = np.full((5, 5), 3.0)
     error[2, 2] = 0.0  # its own sets agreed by chance
