@@ -18,9 +18,11 @@ from rich.markup import escape
 from rich.table import Table
 
 from shots.batch.cli_command import batch
+from shots.cli_help import FLAG, ShotsCommand, ShotsGroup
 from shots.errors import ShotsError
 
 app = typer.Typer(
+    cls=ShotsGroup,
     add_completion=False,
     no_args_is_help=True,
     help="Render glTF 2.0 product models into consistent catalog images, on the CPU.",
@@ -61,29 +63,30 @@ def parse_scene(text: str | None) -> int | str | None:
     return int(text) if text is not None and text.isdigit() else text
 
 
-ModelArg = Annotated[Path, typer.Argument(help="A .gltf or .glb model file.")]
-PresetOpt = Annotated[
-    str, typer.Option("--preset", "-p", help="Built-in preset name or a TOML preset file.")
-]
-SceneOpt = Annotated[
-    str | None, typer.Option("--scene", help="glTF scene index or name (default: the file's).")
-]
+ModelArg = Annotated[Path, typer.Argument(metavar="MODEL", help="A .gltf or .glb model file.")]
+PresetOpt = Annotated[str, typer.Option(
+    "--preset", "-p", metavar="PRESET", help="Built-in preset name or a TOML preset file.")]
+SceneOpt = Annotated[str | None, typer.Option(
+    "--scene", metavar="SCENE", help="glTF scene index or name (default: the file's).")]
+OutputOpt = Annotated[
+    Path, typer.Option("--output", "-o", metavar="FOLDER", help="Output folder.")]
+QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", metavar=FLAG, help="No progress bars.")]
 
 
-@app.command()
+@app.command(cls=ShotsCommand)
 def render(
     model: ModelArg,
-    output: Annotated[Path, typer.Option("--output", "-o", help="Output folder.")] = Path("renders"),
-    size: Annotated[str | None, typer.Option("--size", help="Image size WIDTHxHEIGHT.")] = None,
-    samples: Annotated[
-        int | None,
-        typer.Option("--samples", help="Exactly N camera samples per pixel (adaptive off)."),
-    ] = None,
+    output: OutputOpt = Path("renders"),
+    size: Annotated[str | None, typer.Option(
+        "--size", metavar="WxH", help="Image size WIDTHxHEIGHT.")] = None,
+    samples: Annotated[int | None, typer.Option(
+        "--samples", metavar="N",
+        help="Exactly N camera samples per pixel (adaptive sampling off).")] = None,
     preset: PresetOpt = "still",
     scene: SceneOpt = None,
-    variant: Annotated[
-        str | None, typer.Option("--variant", help="KHR_materials_variants name to render.")
-    ] = None,
+    variant: Annotated[str | None, typer.Option(
+        "--variant", metavar="VARIANT",
+        help="KHR_materials_variants name to render; it joins the file name.")] = None,
 ) -> None:
     """Render one model with a preset's shots (default: one three-quarter still)."""
     from shots.pipeline import render_model
@@ -105,21 +108,19 @@ def render(
     out.print(f"{len(written)} image(s) in {output}", highlight=False)
 
 
-@app.command()
+@app.command(cls=ShotsCommand)
 def plan(
-    preset: Annotated[str, typer.Argument(help="Built-in preset name or a TOML preset file.")],
+    preset: Annotated[str, typer.Argument(
+        metavar="PRESET", help="Built-in preset name or a TOML preset file.")],
     model: ModelArg,
-    as_json: Annotated[bool, typer.Option("--json", help="Print the frames as JSON.")] = False,
-    picture: Annotated[
-        Path | None,
-        typer.Option(
-            "--output", "-o", help="Camera-path picture (PNG; default: MODEL-plan.png here)."
-        ),
-    ] = None,
+    as_json: Annotated[bool, typer.Option(
+        "--json", metavar=FLAG, help="Print the frames as JSON.")] = False,
+    picture: Annotated[Path | None, typer.Option(
+        "--output", "-o", metavar="FILE",
+        help="Camera-path picture (PNG; default: MODEL-plan.png here).")] = None,
     scene: SceneOpt = None,
-    shot: Annotated[
-        list[str] | None, typer.Option("--shot", help="Plan only this shot (repeatable).")
-    ] = None,
+    shot: Annotated[list[str] | None, typer.Option(
+        "--shot", metavar="SHOT", help="Plan only this shot (repeatable).")] = None,
 ) -> None:
     """Print the camera of every frame a preset plans for a model, and draw the camera path."""
     from shots.gltf import load_scene
@@ -154,11 +155,8 @@ def plan(
     out.print(f"camera path picture: {picture}", highlight=False)
 
 
-@app.command()
-def demo(
-    output: Annotated[Path, typer.Option("--output", "-o", help="Output folder.")] = Path("renders"),
-    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bars.")] = False,
-) -> None:
+@app.command(cls=ShotsCommand)
+def demo(output: OutputOpt = Path("renders"), quiet: QuietOpt = False) -> None:
     """Render the invented demo catalog: thumbnails, hero views, a turntable, a report."""
     from shots.batch.progress import print_summary
     from shots.demo import run_demo
@@ -175,12 +173,14 @@ def demo(
     raise typer.Exit(max(summary.exit_code for summary in summaries))
 
 
-@app.command()
+@app.command(cls=ShotsCommand)
 def check(
-    renders: Annotated[Path, typer.Argument(help="A folder of renders (searched recursively).")],
+    renders: Annotated[Path, typer.Argument(
+        metavar="RENDERS", help="A folder of renders (searched recursively).")],
     shot: Annotated[
         str | None,
-        typer.Option("--shot", help="Only images whose path names this shot, e.g. thumbnail."),
+        typer.Option("--shot", metavar="SHOT",
+                     help="Only images whose path names this shot, e.g. thumbnail."),
     ] = None,
 ) -> None:
     """Measure every thumbnail's fill, centring, background and exposure; flag the odd ones."""
@@ -221,7 +221,7 @@ def fmt3(values) -> str:
     return "(" + ", ".join(f"{v:.3f}" for v in values) + ")"
 
 
-app.command()(batch)
+app.command(cls=ShotsCommand)(batch)
 
 
 def main() -> None:

@@ -1,4 +1,4 @@
-"""Deliberately broken copies of the Tavlund demo models, written as a faulty export would be.
+"""Deliberately broken copies of the demo models, written as a faulty export would be.
 
 Each copy edits only the glTF JSON of a demo .glb with pygltflib (the root node's transform, or a
 material's texture reference); the buffer bytes stay as they are, so each copy has exactly the
@@ -24,7 +24,7 @@ Y_UP_TO_Z_UP = [math.sin(math.pi / 4), 0.0, 0.0, math.cos(math.pi / 4)]
 
 
 def demo_model(name: str) -> Path:
-    """A demo .glb by stem, e.g. ``tavlund_ekra_chair``."""
+    """A demo .glb by stem, e.g. ``oak_dining_chair``."""
     return DEMO / f"{name}.glb"
 
 

@@ -4,7 +4,7 @@ Every image is drawn here in numpy: products with analytic outlines (discs, a ta
 legs) anti-aliased by 5×5 supersampling, a texture (stripes, checker, noise), and a soft contact
 shadow that is black with partial alpha, as a shadow catcher writes it. Products are composited
 over the shadow with the Porter–Duff "over" operator in straight alpha (Porter & Duff 1984; PNG
-stores unassociated alpha: PNG spec §6.2, from memory; research checklist C6). Broken copies
+stores unassociated alpha: PNG spec §6.2, from memory). Broken copies
 mimic real faults: a model in centimetres in a fixed-scale render (×100 or ×0.01), an off-centre
 pivot, a flipped image, a model turned over in the scene, a missing texture.
 """

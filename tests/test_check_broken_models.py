@@ -1,7 +1,7 @@
 """The consistency report on real renders of deliberately broken copies of the demo models.
 
 tests/test_check.py proves the measurements on drawn images whose right answers are known; here
-the Tavlund demo models go through the renderer and a catalog batch (``shots.batch.run_batch``,
+the demo models go through the renderer and a catalog batch (``shots.batch.run_batch``,
 which writes the report at its end), with broken copies (tests/broken_copies.py) beside intact
 ones, at 96 × 96 pixels.
 
@@ -52,10 +52,10 @@ pytestmark = pytest.mark.slow  # about 25 renders and three batches
 
 SIZE = 96
 INTACT = [
-    "tavlund_ekra_chair", "tavlund_kipp_stool", "tavlund_liora_lamp", "tavlund_mosse_sofa",
-    "tavlund_rolvan_table", "tavlund_stavre_bookcase",
+    "oak_dining_chair", "lacquered_counter_stool", "brass_floor_lamp", "wool_sofa",
+    "oak_dining_table", "ash_bookcase",
 ]  # fmt: skip
-CHAIR, LAMP, TABLE = "tavlund_ekra_chair", "tavlund_liora_lamp", "tavlund_rolvan_table"
+CHAIR, LAMP, TABLE = "oak_dining_chair", "brass_floor_lamp", "oak_dining_table"
 LIMITS = Tolerances()  # the batch checks with the default tolerances
 
 # 96 px frames with the floor at the file's y = 0 (where a Z-up export sinks through it).

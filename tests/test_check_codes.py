@@ -97,7 +97,7 @@ def test_batch_report_equals_checking_its_files_afterwards(tmp_path):
     # The batch measures first frames from memory; `shots check` reads the same PNG files.
     catalog = tmp_path / "catalog"
     catalog.mkdir()
-    for name in ("tavlund_ekra_chair", "tavlund_kipp_stool", "tavlund_liora_lamp"):
+    for name in ("oak_dining_chair", "lacquered_counter_stool", "brass_floor_lamp"):
         shutil.copy(DEMO / f"{name}.glb", catalog)
     preset = tmp_path / "tiny.toml"
     preset.write_text(TINY)

@@ -2,7 +2,7 @@
 
 The corpus in tests/data/hostile/ comes from make_hostile.py there; expected.json holds the JSON
 path and a message fragment for each file. Rules: glTF 2.0 spec (§GLB File Format, §Accessors,
-§Meshes, §Nodes and Hierarchy, §URIs) and our path policy (gltf-checklist L17).
+§Meshes, §Nodes and Hierarchy, §URIs) and our path policy (shots/gltf/container.py).
 """
 
 from __future__ import annotations

@@ -14,6 +14,7 @@ import typer
 from rich.console import Console
 from rich.markup import escape
 
+from shots.cli_help import FLAG
 from shots.errors import ShotsError
 
 err = Console(stderr=True)
@@ -21,33 +22,46 @@ err = Console(stderr=True)
 
 def batch(
     source: Annotated[Path, typer.Argument(
+        metavar="SOURCE",
         help="A folder of .gltf/.glb models (searched recursively) or a text file listing "
              "one model path per line, relative to the list file.")],
     preset: Annotated[str, typer.Option(
-        "--preset", "-p", help="Built-in preset name or a TOML preset file.")],
-    output: Annotated[Path, typer.Option("--output", "-o", help="Output folder.")],
+        "--preset", "-p", metavar="PRESET", help="Built-in preset name or a TOML preset file.")],
+    output: Annotated[Path, typer.Option(
+        "--output", "-o", metavar="FOLDER", help="Output folder.")],
     variants: Annotated[str, typer.Option(
-        "--variants", help="'default' (the models' own materials) or 'all' "
-                           "(every KHR_materials_variants variant).")] = "default",
+        "--variants", metavar="default|all",
+        help="'default' (the models' own materials) or 'all' "
+             "(every KHR_materials_variants variant).")] = "default",
     force: Annotated[bool, typer.Option(
-        "--force", help="Render every frame, even those that are up to date.")] = False,
+        "--force", metavar=FLAG,
+        help="Render every frame, even those that are up to date.")] = False,
     workers: Annotated[int | None, typer.Option(
-        "--workers", "-j", help="Local worker processes (default: one per core).")] = None,
+        "--workers", "-j", metavar="N",
+        help="Local worker processes (default: one per core).")] = None,
     cluster: Annotated[str | None, typer.Option(
-        "--cluster", help="Address of a Dask distributed scheduler to run on.")] = None,
+        "--cluster", metavar="ADDRESS",
+        help="Address of a Dask distributed scheduler to run on.")] = None,
     template: Annotated[str | None, typer.Option(
-        "--template", help="Frame path template; fields {model} {variant} {shot} {frame} "
-                           "{size}. Default: {model}/{variant}/{shot}/{frame}.png")] = None,
-    bits: Annotated[int, typer.Option("--bits", help="PNG bit depth: 8 or 16.")] = 8,
+        "--template", metavar="TEMPLATE",
+        help="Frame path template; fields {model} {variant} {shot} {frame} "
+             "{size}. Default: {model}/{variant}/{shot}/{frame}.png")] = None,
+    bits: Annotated[int, typer.Option(
+        "--bits", metavar="8|16", help="PNG bit depth: 8 or 16.")] = 8,
     exr: Annotated[bool, typer.Option(
-        "--exr", help="Also write linear premultiplied EXR files (needs OpenEXR).")] = False,
+        "--exr", metavar=FLAG,
+        help="Also write linear premultiplied EXR files beside the PNGs.")] = False,
     animations: Annotated[str, typer.Option(
-        "--animations", help="Formats for moving shots, comma-separated (gif,webp,mp4), "
-                             "or 'none'.")] = "gif,webp,mp4",
-    fps: Annotated[float, typer.Option("--fps", help="Animation frame rate.")] = 12.0,
-    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bars.")] = False,
+        "--animations", metavar="FORMATS",
+        help="Formats for moving shots, comma-separated (gif,webp,mp4), "
+             "or 'none'.")] = "gif,webp,mp4",
+    fps: Annotated[float, typer.Option(
+        "--fps", metavar="FPS", help="Animation frame rate.")] = 12.0,
+    quiet: Annotated[bool, typer.Option(
+        "--quiet", "-q", metavar=FLAG, help="No progress bars.")] = False,
     log_json: Annotated[Path | None, typer.Option(
-        "--log-json", help="Write one JSON event per line to this file.")] = None,
+        "--log-json", metavar="FILE",
+        help="Write one JSON event per line to this file.")] = None,
 ) -> None:
     """Render a catalog: every model × variant × shot of a preset, only what changed."""
     from shots.batch.progress import print_summary

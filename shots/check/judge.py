@@ -27,8 +27,8 @@ shadow-weighted centroid is higher than the product's bounding-box centre by mor
 image (or the camera's up) is flipped. (2) For a model turned over in the scene the shadow stays
 on the floor, so the second cue is the outline's mass: furniture carries its bulk up high on thin
 legs or a stem (chairs, tables, stools, lamps), so the centroid of the product's pixels sits in the
-upper part of its box (0.28–0.47 of the height, 0 at the top, in 160 px renders of the Tavlund
-demo models; 0.59–0.69 for the ones that visibly change when turned over). A product whose mass
+upper part of its box (0.28–0.47 of the height, 0 at the top, in 160 px renders of the demo
+models; 0.59–0.69 for the ones that visibly change when turned over). A product whose mass
 position is greater than both ``mass_low`` and the catalog median plus ``mass_margin`` is
 flagged. Symmetric outlines (a box-like bookcase, a sofa, a chair seen from the side) look much
 the same either way and are not caught.

@@ -96,7 +96,8 @@ def _build(doc: Document, choice, max_triangles: int, max_texture_pixels: int) -
 
 
 def _check_extensions(doc: Document) -> None:
-    """Refuse required extensions we do not implement (checklist L20); note the ignored ones."""
+    """Refuse required extensions we do not implement, note the ignored ones (glTF 2.0 spec
+    §Specifying Extensions)."""
     src, gltf = doc.source, doc.gltf
     required = checks.array(gltf.extensionsRequired, src, "extensionsRequired")
     for k, name in enumerate(required):

@@ -1,9 +1,9 @@
 """Reading a model's bytes: GLB or JSON container, buffers, bufferViews and URIs.
 
-Security policy (ours, not the spec's; checklist L17): data comes only from the file itself, its
-GLB binary chunk, base64 ``data:`` URIs, or regular files whose real path lies inside the model's
-folder. Network and ``file:`` URIs, absolute paths and anything escaping the folder (``..``,
-symlinks) are refused before a byte is read.
+Security policy (ours; the glTF 2.0 spec, §URIs, leaves it to the loader): data comes only from
+the file itself, its GLB binary chunk, base64 ``data:`` URIs, or regular files whose real path lies
+inside the model's folder. Network and ``file:`` URIs, absolute paths and anything escaping the
+folder (``..``, symlinks) are refused before a byte is read.
 """
 
 from __future__ import annotations
@@ -150,7 +150,7 @@ class Document:
 
 
 def read_document(path: str | os.PathLike) -> Document:
-    """Open a .gltf or .glb file (GLB detected by its magic number, checklist L18).
+    """Open a .gltf or .glb file (GLB detected by its magic number, glTF 2.0 spec §GLB File Format).
 
     Raises
     ------

@@ -1,4 +1,4 @@
-"""KHR_draco_mesh_compression through PyPI ``DracoPy`` (optional; checklist L22).
+"""KHR_draco_mesh_compression (its README) through PyPI ``DracoPy`` (optional).
 
 The primitive's accessors have no bufferView; the compressed bufferView decodes to positions,
 normals, texture coordinates and colours, which we hand to the accessor reader as overrides so

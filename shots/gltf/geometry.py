@@ -39,7 +39,8 @@ class Piece:
 # ---------------------------------------------------------------- scene graph --------------
 
 def scene_roots(doc: Document, choice: int | str | None) -> list[int]:
-    """Root nodes of the chosen scene: by index or name, else ``scene``, else scenes[0] (L1)."""
+    """Root nodes of the chosen scene: by index or name, else ``scene``, else scenes[0] (glTF 2.0
+    spec §Scenes leaves that last choice open)."""
     gltf, src = doc.gltf, doc.source
     scenes = gltf.scenes or []
     if not scenes:
@@ -90,7 +91,7 @@ def world_transforms(doc: Document, roots: list[int]) -> list[tuple[int, np.ndar
 
 
 def local_matrix(doc: Document, i: int) -> np.ndarray:
-    """(4, 4) float64 local transform of node ``i`` (Spec §Transformations, checklist L2, L3)."""
+    """(4, 4) float64 local transform of node ``i`` (glTF 2.0 spec §Transformations)."""
     node, src, where = doc.gltf.nodes[i], doc.source, f"nodes[{i}]"
     if node.matrix is not None:
         m = checks.numbers(node.matrix, 16, src, where + ".matrix")
@@ -105,7 +106,8 @@ def local_matrix(doc: Document, i: int) -> np.ndarray:
 
 
 def quaternion_matrix(q: list[float], doc: Document, where: str) -> np.ndarray:
-    """(3, 3) rotation of the unit quaternion ``q`` = (x, y, z, w), w the scalar (L3)."""
+    """(3, 3) rotation of the unit quaternion ``q`` = (x, y, z, w), w the scalar (glTF 2.0 spec
+    §Transformations)."""
     x, y, z, w = q
     norm = np.sqrt(x * x + y * y + z * z + w * w)
     if not norm > 1e-12:
@@ -121,9 +123,10 @@ def quaternion_matrix(q: list[float], doc: Document, where: str) -> np.ndarray:
 # ---------------------------------------------------------------- primitives ---------------
 
 def triangulate(order: np.ndarray, mode: int) -> np.ndarray:
-    """(k, 3) int32 triangles from a vertex order and a triangle mode (checklist L13).
+    """(k, 3) int32 triangles from a vertex order and a mode (glTF 2.0 spec §Meshes, ``mode``).
 
-    Strip triangle i = (v_i, v_{i+1+i%2}, v_{i+2-i%2}); fan triangle i = (v_{i+1}, v_{i+2}, v_0).
+    Vertex order as in the Vulkan specification, "Primitive Topologies": strip triangle
+    i = (v_i, v_{i+1+i%2}, v_{i+2-i%2}); fan triangle i = (v_{i+1}, v_{i+2}, v_0).
     ``order`` values must already be checked to lie below 2**31.
     """
     n = order.shape[0]
@@ -248,7 +251,8 @@ class GeometryBuilder:
         self.pieces.append(piece)
 
     def _check_declared_bounds(self, i: int, positions: np.ndarray) -> None:
-        """Warn when POSITION's declared min/max disagree with its data (checklist L11)."""
+        """Warn when POSITION's declared min/max disagree with its data (glTF 2.0 spec §Accessors:
+        POSITION must declare them)."""
         acc = self.doc.gltf.accessors[i]
         try:
             declared = np.array([acc.min, acc.max], np.float64).reshape(2, 3)
@@ -467,7 +471,8 @@ def generate_tangents(positions: np.ndarray, normals: np.ndarray, triangles: np.
     """(v, 4) float32 tangents from UV derivatives, averaged per vertex (Lengyel's method).
 
     T follows +u. glTF's v runs down the image, so the bitangent B = cross(N, T)·w must point
-    toward decreasing v (checklist M6): w = sign(dot(cross(N, T), -dP/dv)).
+    toward decreasing v (glTF 2.0 spec §Meshes, TANGENT; glTF-Sample-Models issue #174):
+    w = sign(dot(cross(N, T), -dP/dv)).
     """
     v = positions.shape[0]
     out = np.zeros((v, 4), np.float32)

@@ -1,8 +1,8 @@
 """Images and samplers into the flat texture atlas (Spec §Textures, §Images, §Samplers).
 
-Images are sniffed by magic number (checklist L19), decoded with Pillow to RGBA, colour
-textures sRGB-decoded (IEC 61966-2-1) before anything filters them, and stored with texel row 0
-= the image's top row, so uv (0, 0) is the top-left corner (Spec §Images).
+Images are sniffed by magic number (PNG: ISO/IEC 15948 §5.2; JPEG: FF D8 FF), decoded with Pillow
+to RGBA, colour textures sRGB-decoded (IEC 61966-2-1) before anything filters them, and stored with
+texel row 0 = the image's top row, so uv (0, 0) is the top-left corner (Spec §Images).
 """
 
 from __future__ import annotations

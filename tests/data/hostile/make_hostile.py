@@ -100,7 +100,7 @@ def main() -> None:
             old.unlink()
     J, BIN = 0x4E4F534A, 0x004E4942
 
-    # ---- paths outside the folder, network and file URIs (our policy, checklist L17) ----
+    # ---- paths outside the folder, network and file URIs (our policy: shots/gltf/container.py) ---
     write_json("uri_dotdot.gltf", with_buffer_uri("../secret.bin"), "buffers[0].uri",
                "leaves the model's folder")
     write_json("uri_dotdot_encoded.gltf", with_buffer_uri("sub/%2E%2E/%2E%2E/secret.bin"),
