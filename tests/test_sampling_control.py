@@ -3,7 +3,7 @@
 import numba
 import numpy as np
 import pytest
-from scenes import diffuse, look, sphere
+from scenes import diffuse, look, material, ortho_camera, pixel_centres, quad, render, sphere
 
 from shots.camera import Camera
 from shots.look import Environment, Light
@@ -156,3 +156,33 @@ def test_adaptive_reruns_are_bit_identical_on_one_and_two_threads():
         numba.set_num_threads(threads)
     for rgba, used in outcomes:
         assert np.array_equal(rgba, first) and np.array_equal(used, counts)
+
+
+ADAPTIVE = {"samples": 0, "noise_target": 1.0, "min_samples": 8, "max_samples": 64}
+
+
+def test_adaptive_sets_combine_without_bias_in_the_furnace():
+    # White furnace (common practice, e.g. Heitz et al. 2016 "Multiple-scattering microfacet
+    # BSDFs", §6), as in test_shading: GGX single scattering of a white metal of roughness 0.2
+    # keeps above 98 % facing the camera and never gains energy, whatever sets the pixels took.
+    camera = ortho_camera(24)
+    white = Environment(zenith=(1.0, 1.0, 1.0), horizon=(1.0, 1.0, 1.0), nadir=(1.0, 1.0, 1.0))
+    row = material(P_METALLIC=1.0, P_ROUGHNESS=0.2)
+    image, counts = render_frame_counted(prepare_scene(sphere(rows=[row])), camera,
+                                         look(env=white, glossy_samples=8, **ADAPTIVE))  # fmt: skip
+    x, y = pixel_centres(camera)
+    facing = x * x + y * y < 0.8
+    assert image[facing, 0].mean() > 0.98
+    assert image[image[..., 3] > 0, 0].max() <= 1.0 + 1e-6
+    assert counts.min() >= 8 and counts.max() <= 64
+
+
+def test_adaptive_coverage_converges_on_an_edge():
+    # as test_render's edge test: an edge through a pixel's centre covers half of its
+    # symmetric tent filter, so alpha → 0.5 (the quad is unlit white: rgb == alpha)
+    row = diffuse(P_UNLIT=1.0)
+    half = render(quad(size=1.0, center=(0.625, 0, 0), rows=[row]), ortho_camera(8, 1.0),
+                  look(**ADAPTIVE))  # fmt: skip
+    edge = half[3:5, 4]
+    assert np.allclose(edge[:, 3], 0.5, atol=0.03)
+    np.testing.assert_allclose(edge[:, 0], edge[:, 3], rtol=1e-6)
