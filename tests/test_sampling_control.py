@@ -1,5 +1,11 @@
 """Sampling control: the error estimate, the stop rule, forced counts, determinism."""
 
+import hashlib
+import os
+import subprocess
+import sys
+from pathlib import Path
+
 import numba
 import numpy as np
 import pytest
@@ -121,6 +127,28 @@ def test_pass_seeds_differ_and_the_first_is_the_frame_seed():
     assert pass_seed(7, 0) == 7
     seeds = {pass_seed(7, k) for k in range(64)}
     assert len(seeds) == 64 and all(0 <= s < 2**32 for s in seeds)
+
+
+def adaptive_digest() -> str:
+    """SHA-256 of the adaptive render's pixels and sample counts (run also in a subprocess)."""
+    prepared, camera = scene_and_camera()
+    settings = look(LIGHT, env=Environment(), ground="shadow_catcher", samples=0, seed=3,
+                    noise_target=2.0, min_samples=8, max_samples=32)  # fmt: skip
+    rgba, counts = render_frame_counted(prepared, camera, settings)
+    return hashlib.sha256(rgba.tobytes() + counts.tobytes()).hexdigest()
+
+
+@pytest.mark.slow
+def test_adaptive_render_is_the_same_on_three_threads_in_another_process():
+    # numba's thread count is fixed per process: NUMBA_NUM_THREADS=3 deals the work items in
+    # another pattern than this process's (even on a machine with fewer cores)
+    here = Path(__file__).parent
+    code = "from test_sampling_control import adaptive_digest; print(adaptive_digest())"
+    env = {**os.environ, "NUMBA_NUM_THREADS": "3",
+           "PYTHONPATH": os.pathsep.join([str(here), os.environ.get("PYTHONPATH", "")])}
+    child = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True,
+                           text=True, check=True, cwd=here)  # fmt: skip
+    assert child.stdout.strip().splitlines()[-1] == adaptive_digest()
 
 
 def scene_and_camera():
