@@ -73,7 +73,7 @@ def render_model(
         preset = preset.with_image_size(*size)
     if samples is not None:
         preset = preset.with_samples(samples)
-    loaded = load_scene(model, scene=scene_choice)
+    loaded = load_scene(model, scene=scene_choice, limits=preset.limits)
     hints = model_hints(loaded) if preset.model.units == "m" and preset.model.up_axis == "y" else []
     scene = apply_model_fixes(loaded, preset)
     if on_warning is not None:

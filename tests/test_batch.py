@@ -122,7 +122,8 @@ def tree(out: Path) -> dict[str, bytes]:
 
 
 def expected_files() -> set[str]:
-    files = {"index.json", "index.csv", "contact_sheet.png", "report.md", "report.json"}
+    files = {"index.json", "index.csv", "contact_sheet.png", "report.md", "report.json",
+             "review.html"}
     for model, variants in VARIANTS.items():
         files.add(f"manifests/{model}.json")
         for variant in variants:
@@ -198,7 +199,8 @@ def test_catalog_index_lists_every_file(reference):
     assert len(rows) == 1 + FRAMES + 18
     listed = {row.split(",")[6] for row in rows[1:]}
     assert listed == expected_files() - {
-        "index.json", "index.csv", "contact_sheet.png", "report.md", "report.json"} - {
+        "index.json", "index.csv", "contact_sheet.png", "report.md", "report.json",
+        "review.html"} - {
         f"manifests/{m}.json" for m in VARIANTS}
 
 
@@ -280,8 +282,8 @@ def test_touching_one_model_rerenders_only_its_frames(reference, tmp_path):
     old, new = tree(reference["out"]), tree(out)
     changed = {path for path in old if old[path] != new[path]}
     assert "Box/default/hero/000.png" in changed  # the new colour shows
-    assert all(p.startswith(("Box/", "manifests/Box.json", "index.", "contact_sheet", "report."))
-               for p in changed)
+    assert all(p.startswith(("Box/", "manifests/Box.json", "index.", "contact_sheet", "report.",
+                             "review.")) for p in changed)
 
 
 def test_touching_an_external_texture_rerenders_its_model(reference, tmp_path):

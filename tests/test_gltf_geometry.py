@@ -350,8 +350,9 @@ def test_triangle_limit(tmp_path):
     b.scene([b.node(mesh=mesh), b.node(mesh=mesh, translation=[2, 0, 0])])
     path = b.write_glb(tmp_path / "l.glb")
     assert load_scene(path, max_triangles=2).triangle_count == 2
-    with pytest.raises(GltfError, match="limit of 1 triangles"):
+    with pytest.raises(GltfError, match="over the limit triangles 1") as err:
         load_scene(path, max_triangles=1)
+    assert err.value.field == "nodes[1]"  # the second instance passes the budget
 
 
 def test_nan_and_degenerate_triangles_dropped_with_warning(tmp_path):

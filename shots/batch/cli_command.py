@@ -12,10 +12,10 @@ from typing import Annotated
 
 import typer
 from rich.console import Console
-from rich.markup import escape
 
 from shots.cli_help import FLAG
 from shots.errors import ShotsError
+from shots.terminal import literal
 
 err = Console(stderr=True)
 
@@ -42,6 +42,15 @@ def batch(
     cluster: Annotated[str | None, typer.Option(
         "--cluster", metavar="ADDRESS",
         help="Address of a Dask distributed scheduler to run on.")] = None,
+    tls_ca_file: Annotated[str | None, typer.Option(
+        "--tls-ca-file", metavar="FILE",
+        help="CA certificate for a tls:// --cluster (with --tls-cert).")] = None,
+    tls_cert: Annotated[str | None, typer.Option(
+        "--tls-cert", metavar="FILE",
+        help="This client's TLS certificate for a tls:// --cluster.")] = None,
+    tls_key: Annotated[str | None, typer.Option(
+        "--tls-key", metavar="FILE",
+        help="Its private key, when not inside the --tls-cert file.")] = None,
     template: Annotated[str | None, typer.Option(
         "--template", metavar="TEMPLATE",
         help="Frame path template; fields {model} {variant} {shot} {frame} "
@@ -62,25 +71,46 @@ def batch(
     log_json: Annotated[Path | None, typer.Option(
         "--log-json", metavar="FILE",
         help="Write one JSON event per line to this file.")] = None,
+    limit: Annotated[list[str] | None, typer.Option(
+        "--limit", metavar="KEY=VALUE",
+        help="Override a budget of the preset's [limits] (repeatable).")] = None,
 ) -> None:
     """Render a catalog: every model × variant × shot of a preset, only what changed."""
     from shots.batch.progress import print_summary
     from shots.batch.run import run_batch
+    from shots.limits import preset_with_limits
+    from shots.presets import load_preset
 
     formats = tuple(a.strip() for a in animations.split(",") if a.strip() and a != "none")
     try:
+        tls = cluster_tls(cluster, tls_ca_file, tls_cert, tls_key)
+        chosen = preset_with_limits(load_preset(preset), limit)
         summary = run_batch(
-            source, preset, output, variants=variants, force=force, workers=workers,
+            source, chosen, output, variants=variants, force=force, workers=workers,
             cluster=cluster, quiet=quiet, log_json=log_json, template=template, bits=bits,
-            exr=exr, animations=formats, fps=fps, console=err,
+            exr=exr, animations=formats, fps=fps, console=err, cluster_tls=tls,
         )
     except ShotsError as exc:
-        err.print(f"[bold red]error:[/] {escape(str(exc))}", highlight=False, soft_wrap=True)
+        err.print(f"[bold red]error:[/] {literal(str(exc))}", highlight=False, soft_wrap=True)
         raise typer.Exit(2) from None
     if quiet:
         for listed_as, reason in summary.failures:
-            err.print(f"[bold red]failed:[/] {escape(listed_as)}: {escape(reason)}", highlight=False,
+            err.print(f"[bold red]failed:[/] {literal(listed_as)}: {literal(reason)}", highlight=False,
                       soft_wrap=True)
     else:
         print_summary(summary, err)
     raise typer.Exit(summary.exit_code)
+
+
+def cluster_tls(cluster: str | None, ca_file: str | None, cert: str | None, key: str | None):
+    """The ``ClusterTls`` the --tls-* options describe, or None when none is given."""
+    from shots.batch.runner import ClusterTls
+    from shots.errors import UsageError
+
+    if ca_file is None and cert is None and key is None:
+        return None
+    if cluster is None or ca_file is None or cert is None:
+        raise UsageError("--tls-ca-file", None, "TLS needs --cluster tls://..., --tls-ca-file "
+                                                "and --tls-cert (and --tls-key unless the "
+                                                "certificate file holds it)")
+    return ClusterTls(ca_file, cert, key)
