@@ -65,7 +65,7 @@ def test_options_show_their_metavar_and_flags_show_none(name):
     assert options
     for option in options:
         long = max(option.opts, key=len)
-        row = next(line for line in text.splitlines() if re.search(rf"{long}\b", line))
+        row = next(line for line in text.splitlines() if re.search(rf"^\W*{re.escape(long)}\b", line))
         assert not TYPE_TAG.search(row), row
         after = row.split(long, 1)[1]
         after = re.sub(r"^\s+-\w\b", "", after)  # the short form, if any
