@@ -52,6 +52,13 @@ def parse_size(text: str | None) -> tuple[int, int] | None:
     return int(match.group(1)), int(match.group(2))
 
 
+def parse_samples(count: int | None) -> int | None:
+    """--samples N: a forced count of camera samples per pixel, 1 to 4096."""
+    if count is not None and not 1 <= count <= 4096:
+        fail(f"--samples: expected a count between 1 and 4096, got {count}")
+    return count
+
+
 def parse_scene(text: str | None) -> int | str | None:
     return int(text) if text is not None and text.isdigit() else text
 
@@ -75,6 +82,9 @@ def render(
     output: OutputOpt = Path("renders"),
     size: Annotated[str | None, typer.Option(
         "--size", metavar="WxH", help="Image size WIDTHxHEIGHT.")] = None,
+    samples: Annotated[int | None, typer.Option(
+        "--samples", metavar="N",
+        help="Exactly N camera samples per pixel (adaptive sampling off).")] = None,
     preset: PresetOpt = "still",
     scene: SceneOpt = None,
     variant: Annotated[str | None, typer.Option(
@@ -93,6 +103,7 @@ def render(
             output,
             preset_with_limits(load_preset(preset), limit),
             size=parse_size(size),
+            samples=parse_samples(samples),
             scene_choice=parse_scene(scene),
             variant=variant,
             on_frame=lambda r: out.print(f"wrote {literal(r.path)}", highlight=False),

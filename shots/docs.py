@@ -49,6 +49,16 @@ KEY_NOTES = {
     "Preset.publish": "Product table and copyright line for the derivatives.",
     "ImageSettings.width": "Image width in pixels.",
     "ImageSettings.height": "Image height in pixels.",
+    "ImageSettings.samples": "Camera samples per pixel. 0 (the default) samples adaptively: each "
+                             "pixel takes stratified sets until its estimated error is under "
+                             "`noise_target`; N forces exactly N in every pixel (previews, "
+                             "references; a square number is stratified exactly).",
+    "ImageSettings.noise_target": "Adaptive sampling stops a pixel when its estimated error (one "
+                                  "standard error, with its 3×3 neighbours) is under this many "
+                                  "8-bit sRGB codes (0–255) of the displayed colour or alpha.",
+    "ImageSettings.min_samples": "Adaptive sampling: samples every pixel takes before its error "
+                                 "is judged (at least 8: two sets of 4 give a variance).",
+    "ImageSettings.max_samples": "Adaptive sampling: the most samples a pixel takes.",
     "ImageSettings.seed": "Base of every frame's random numbers: the same seed gives the same "
                           "pixels on any machine and thread count.",
     "LookSettings.exposure": "Exposure in stops: linear light is multiplied by 2^exposure "

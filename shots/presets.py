@@ -4,7 +4,8 @@ A preset has these tables, every key optional (the defaults below apply)::
 
     description = "..."
     extends = "thumbnail"            # or a path relative to this file, or a list merged in order
-    [image]       width height samples light_samples gloss_samples bounces seed
+    [image]       width height samples noise_target min_samples max_samples light_samples
+                  gloss_samples bounces seed
     [look]        exposure (stops) tone_map
     [model]       units ("m", "cm", "mm", "auto") up_axis ("y", "z")
     [background]  kind ("transparent", "solid", "gradient", "environment") color color_bottom
@@ -104,11 +105,21 @@ CameraReference = Annotated[str | int, PlainValidator(_camera_reference)]
 class ImageSettings(Table):
     width: int = Field(512, ge=1, le=16384)
     height: int = Field(512, ge=1, le=16384)
-    samples: int = Field(16, ge=1, le=4096)  # camera samples per pixel (square = exact strata)
+    samples: int = Field(0, ge=0, le=4096)
+    noise_target: float = Field(2.0, ge=0.1, le=64.0)
+    min_samples: int = Field(8, ge=8, le=4096)
+    max_samples: int = Field(64, ge=8, le=4096)
     light_samples: int = Field(4, ge=1, le=1024)  # shadow rays per area light per hit
     gloss_samples: int = Field(4, ge=1, le=1024)  # reflection rays for rough surfaces
     bounces: int = Field(4, ge=0, le=64)  # reflection/refraction recursion limit
     seed: int = Field(0, ge=0, le=2**32 - 1)
+
+    @model_validator(mode="after")
+    def _sample_range(self) -> ImageSettings:
+        if self.min_samples > self.max_samples:
+            raise ValueError(f"min_samples ({self.min_samples}) must not exceed max_samples "
+                             f"({self.max_samples})")  # fmt: skip
+        return self
 
 
 class LookSettings(Table):
@@ -514,10 +525,16 @@ class Preset(Table):
 
     def with_image_size(self, width: int, height: int) -> Preset:
         """The same preset rendering at ``width`` × ``height`` pixels."""
+        return self.with_image(width=width, height=height)
+
+    def with_samples(self, samples: int) -> Preset:
+        """The same preset with exactly ``samples`` camera samples per pixel (adaptivity off)."""
+        return self.with_image(samples=samples)
+
+    def with_image(self, **changes) -> Preset:
+        """The same preset with these ``[image]`` keys changed (validated like the file's)."""
         try:
-            image = ImageSettings.model_validate(
-                {**self.image.model_dump(), "width": width, "height": height}
-            )
+            image = ImageSettings.model_validate({**self.image.model_dump(), **changes})
         except ValidationError as exc:
             raise PresetError(self.source, "image", _first_problem(exc)[1]) from None
         sized = self.model_copy(update={"image": image})
@@ -1021,6 +1038,9 @@ def resolve_look(preset: Preset, camera: Camera, centre, radius: float, seed: in
         ground=Ground(**preset.ground.model_dump()),
         background=Background(**preset.background.model_dump()),
         samples=preset.image.samples,
+        noise_target=preset.image.noise_target,
+        min_samples=preset.image.min_samples,
+        max_samples=preset.image.max_samples,
         area_light_samples=preset.image.light_samples,
         glossy_samples=preset.image.gloss_samples,
         max_depth=preset.image.bounces,

@@ -80,9 +80,7 @@ def test_options_show_their_metavar_and_flags_show_none(name):
     assert options
     for option in options:
         long = max(option.opts, key=len)
-        # the option's own row: it opens the row (another option's help may mention it)
-        row = next(line for line in text.splitlines()
-                   if re.search(rf"^[\W*]*{re.escape(long)}\b", line))
+        row = next(line for line in text.splitlines() if re.search(rf"^\W*{re.escape(long)}\b", line))
         assert not TYPE_TAG.search(row), row
         after = row.split(long, 1)[1]
         after = re.sub(r"^\s+-\w\b", "", after)  # the short form, if any
