@@ -19,11 +19,6 @@ if TYPE_CHECKING:
 
 WARNING, IGNORED = "warning", "ignored"
 
-# sampler minFilter values other than the magnification filters (glTF 2.0 spec §Samplers)
-MIPMAP_FILTERS = {9984: "NEAREST_MIPMAP_NEAREST", 9985: "LINEAR_MIPMAP_NEAREST",
-                  9986: "NEAREST_MIPMAP_LINEAR", 9987: "LINEAR_MIPMAP_LINEAR"}
-
-
 class Note(str):
     """One line about a model; ``kind`` is ``"warning"`` (repaired or doubtful input) or
     ``"ignored"`` (read from the file, not rendered)."""
@@ -47,7 +42,7 @@ def as_note(item) -> Note:
 def unused_features(doc: Document, nodes: list[tuple[int, np.ndarray]]) -> None:
     """Note, once per model, what the file holds that the renderer does not use: skins, morph
     targets and animations (glTF 2.0 spec §Skins, §Morph Targets, §Animations: the model is
-    drawn in its rest pose), mipmap minification filters (§Samplers)."""
+    drawn in its rest pose)."""
     gltf, src = doc.gltf, doc.source
     used_nodes = [gltf.nodes[i] for i, _ in nodes]
     meshes = {n.mesh for n in used_nodes if isinstance(n.mesh, int)}
@@ -62,20 +57,6 @@ def unused_features(doc: Document, nodes: list[tuple[int, np.ndarray]]) -> None:
     animations = checks.array(gltf.animations, src, "animations")
     if animations:
         doc.ignore(f"{len(animations)} animation(s) not played: drawn in the rest pose")
-    _unused_samplers(doc)
-
-
-def _unused_samplers(doc: Document) -> None:
-    """A mipmap minFilter is read and checked, but minification uses the magnification filter;
-    one note names every such sampler."""
-    gltf = doc.gltf
-    used = {t.sampler for t in gltf.textures or [] if isinstance(t.sampler, int)}
-    mipmapped = [f"samplers[{s}] {MIPMAP_FILTERS[gltf.samplers[s].minFilter]}"
-                 for s in sorted(used) if s < len(gltf.samplers or [])
-                 and gltf.samplers[s].minFilter in MIPMAP_FILTERS]
-    if mipmapped:
-        doc.ignore(f"mipmap minFilter not used (minification uses the magnification filter): "
-                   f"{', '.join(mipmapped)}")
 
 
 def camera_notes(doc: Document, cameras) -> None:
