@@ -19,6 +19,7 @@ if TYPE_CHECKING:
 
 WARNING, IGNORED = "warning", "ignored"
 
+
 class Note(str):
     """One line about a model; ``kind`` is ``"warning"`` (repaired or doubtful input) or
     ``"ignored"`` (read from the file, not rendered)."""
