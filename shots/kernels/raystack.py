@@ -17,17 +17,26 @@ R_TMIN = 11
 R_SIGMA = 12  # (3) absorption coefficients of the medium the ray travels in (1/m)
 R_CAMERA = 15  # 1 for camera rays and their straight continuations
 R_START = 16  # (3) where the ray's medium segment began: its un-offset surface point
-N_RAY = 19
+# --- environment light and diffuse bounces (shots.kernels.ambient) ---
+R_BOUNCES = 19  # diffuse bounces on the path so far (copied from the ray being traced)
+R_AMBIENT = 20  # 1: the environment this ray would see is already counted (ambient base)
+R_SKY = 21  # (3) what to take back when such a ray is blocked
+R_LIGHT_PDF = 24  # > 0: a glossy ray that sees area lights; its technique's solid-angle pdf
+N_RAY = 25
 STACK_RAYS = 96  # the last row holds the ray being traced
 MIN_WEIGHT = 1e-3  # rays carrying less than this are not traced (their mean is added instead)
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def push_ray(stack, sp, ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, sr, sg, sb, camera):
-    """Push a ray onto the stack; returns the new stack size (rays beyond capacity are dropped)."""
+    """Push a ray onto the stack; returns the new stack size (rays beyond capacity are dropped).
+
+    The new ray inherits the path's diffuse-bounce count from the ray being traced (last row).
+    """
     if sp >= stack.shape[0] - 1:  # the last row is the current ray
         return sp
     set_ray(stack[sp], ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, sr, sg, sb, camera)
+    stack[sp, R_BOUNCES] = stack[stack.shape[0] - 1, R_BOUNCES]
     return sp + 1
 
 
@@ -54,6 +63,12 @@ def set_ray(row, ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, sr, sg,
     row[R_START] = ox
     row[R_START + 1] = oy
     row[R_START + 2] = oz
+    row[R_BOUNCES] = 0.0
+    row[R_AMBIENT] = 0.0
+    row[R_SKY] = 0.0
+    row[R_SKY + 1] = 0.0
+    row[R_SKY + 2] = 0.0
+    row[R_LIGHT_PDF] = 0.0
 
 
 
