@@ -14,7 +14,7 @@ from scenes import box, diffuse, look, material, merge, mesh_scene, ortho_camera
 import shots.render
 from shots.environment import environment_map, sampling_table
 from shots.kernels import layout
-from shots.kernels.ambient import hemisphere_clear, power_heuristic
+from shots.kernels.ambient import box_distance, hemisphere_clear, power_heuristic
 from shots.kernels.envlight import env_pdf, sample_env
 from shots.kernels.ground import GROUND_CATCHER, GROUND_NONE, GROUND_PLANE, N_GROUND
 from shots.look import Environment
@@ -120,6 +120,16 @@ def test_hemisphere_clear_only_where_no_ray_can_meet_the_model():
         t = moller_trumbore(positions, scene.triangles, np.tile(p + 1e-6 * n, (200, 1)), d)[0]
         assert np.all(~np.isfinite(t))
     assert accepted > 5
+
+
+def test_box_distance_bounds_the_contact_shadow_rays():
+    # Euclidean distance from a point to an axis-aligned box (0 inside): contact-shadow rays of
+    # length r cannot meet the model from points farther than r
+    frame = _frame()
+    frame[layout.F_BOX : layout.F_BOX + 6] = (-1.0, 0.0, -1.0, 1.0, 2.0, 1.0)
+    assert box_distance(frame, 0.0, 1.0, 0.0) == 0.0
+    assert box_distance(frame, 4.0, 0.0, 0.0) == pytest.approx(3.0)
+    assert box_distance(frame, 4.0, -4.0, 5.0) == pytest.approx(math.sqrt(9 + 16 + 16))
 
 
 def _floor_and_wall(h=1.0):
