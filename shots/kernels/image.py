@@ -5,6 +5,15 @@ Inputs are few wide arrays (``shots.kernels.layout``); the BVH and the scene go 
     scene = (verts, faces, materials, texels, tex_info)          packed by shots.render
 Everything is borrowed (``shots.kernels.borrow``) at the top of each parallel work item; pixels
 are independent, and tiles are dealt to work items round-robin, each with its own scratch.
+
+Sampling contract (relied on by the shading kernels)
+    One call traces one *stratified set* of ``frame[F_SAMPLES]`` camera samples in every active
+    pixel; the kernels below receive ``sample`` (0 … F_SAMPLES − 1, the index within that set)
+    and stratify their per-hit rays over the set with ``spread_count`` / ``spread_stratum`` /
+    ``next_pair`` (``shots.kernels.sampling``). Adaptive sampling (``shots.sampling_control``)
+    calls this kernel once per pass, each pass one such set with its own ``frame[F_SEED]`` (the
+    frame's seed with the pass number folded in), so every pass is stratified on its own and
+    no two passes share random numbers.
 """
 
 from __future__ import annotations
@@ -43,16 +52,19 @@ WORK_ITEMS = 256  # parallel items; tiles are dealt round-robin so threads stay 
 # No fastmath here: numba passes it on to the callees it compiles, and contracting the
 # watertight edge functions into FMAs lets rays through shared edges (Woop et al. 2013).
 @njit(cache=True, parallel=True, error_model="numpy")
-def render_image(out, frame, lights, env, ground, bvh, scene):
-    """Render every pixel into ``out``.
+def render_image(out, frame, lights, env, ground, bvh, scene, active, counts):
+    """Render one stratified set of samples in every active pixel into ``out``.
 
     Parameters
     ----------
-    out : (h, w, 4) float32, receives premultiplied linear RGBA.
+    out : (h, w, 4) float32, receives the set's mean premultiplied linear RGBA in active
+        pixels (the others are left as they are).
     frame : (N_FRAME,) float64 camera, settings, background and SH (``shots.kernels.layout``).
     lights : (k, N_LIGHT_COLS) float64; env : (radiance (eh, ew, 3) float32, its sampling
     table rows (eh, ew) and marginal (eh,) float64), see ``shots.kernels.envlight``;
     ground : (N_GROUND,) float64; bvh, scene : see the module docstring.
+    active : (h, w) uint8, non-zero where the pixel takes this set.
+    counts : (h, w) int32, each active pixel's count grows by the samples it traced.
     """
     width = int(frame[F_WIDTH])
     height = int(frame[F_HEIGHT])
@@ -78,6 +90,8 @@ def render_image(out, frame, lights, env, ground, bvh, scene):
             y0 = (tile // tiles_x) * TILE
             for j in range(y0, min(y0 + TILE, height)):
                 for i in range(x0, min(x0 + TILE, width)):
+                    if active[j, i] == 0:
+                        continue
                     pixel = j * width + i
                     for c in range(4):
                         work[W_ACC + c] = 0.0
@@ -92,6 +106,7 @@ def render_image(out, frame, lights, env, ground, bvh, scene):
                         trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, b_frame, b_lights,
                                      b_env, b_bvh, b_scene, b_ground, pixel, s, stack, surf,
                                      surf2, work, tstack)  # fmt: skip
+                        counts[j, i] += 1
                     for c in range(4):
                         value = work[W_ACC + c] / spp
                         # a degenerate input (NaN normal, zero-area light) must not spread
