@@ -127,6 +127,9 @@ class LookSettings(Table):
     exposure: float = Field(0.0, ge=-20.0, le=20.0)  # stops
     tone_map: Literal[TONE_MAPS] = "neutral"
     model_lights: Literal["rig", "model", "both"] = "rig"  # shots.model_lights
+    diffuse_bounces: int = Field(1, ge=0, le=8, description=(
+        "Bounces of diffuse light between the model's parts (a coloured panel tints its "
+        "neighbours); 0 keeps only the environment, blocked by the model, and the lights."))
 
 
 class ModelSettings(Table):
@@ -1052,6 +1055,7 @@ def resolve_look(preset: Preset, camera: Camera, centre, radius: float, seed: in
         area_light_samples=preset.image.light_samples,
         glossy_samples=preset.image.gloss_samples,
         max_depth=preset.image.bounces,
+        diffuse_bounces=preset.look.diffuse_bounces,
         exposure=preset.look.exposure,
         tone_map=preset.look.tone_map,
         seed=seed,

@@ -52,7 +52,7 @@ WORK_ITEMS = 256  # parallel items; tiles are dealt round-robin so threads stay 
 # No fastmath here: numba passes it on to the callees it compiles, and contracting the
 # watertight edge functions into FMAs lets rays through shared edges (Woop et al. 2013).
 @njit(cache=True, parallel=True, error_model="numpy")
-def render_image(out, frame, lights, env_map, ground, bvh, scene, active, counts):
+def render_image(out, frame, lights, env, ground, bvh, scene, active, counts):
     """Render one stratified set of samples in every active pixel into ``out``.
 
     Parameters
@@ -60,7 +60,8 @@ def render_image(out, frame, lights, env_map, ground, bvh, scene, active, counts
     out : (h, w, 4) float32, receives the set's mean premultiplied linear RGBA in active
         pixels (the others are left as they are).
     frame : (N_FRAME,) float64 camera, settings, background and SH (``shots.kernels.layout``).
-    lights : (k, N_LIGHT_COLS) float64; env_map : (eh, ew, 3) float32 linear radiance;
+    lights : (k, N_LIGHT_COLS) float64; env : (radiance (eh, ew, 3) float32, its sampling
+    table rows (eh, ew) and marginal (eh,) float64), see ``shots.kernels.envlight``;
     ground : (N_GROUND,) float64; bvh, scene : see the module docstring.
     active : (h, w) uint8, non-zero where the pixel takes this set.
     counts : (h, w) int32, each active pixel's count grows by the samples it traced.
@@ -79,9 +80,8 @@ def render_image(out, frame, lights, env_map, ground, bvh, scene, active, counts
             owned[3]
         )
         surf, surf2 = surfs[0], surfs[1]
-        b_frame, b_lights, b_env, b_ground = borrow(frame), borrow(lights), borrow(env_map), borrow(
-            ground
-        )
+        b_frame, b_lights, b_ground = borrow(frame), borrow(lights), borrow(ground)
+        b_env = (borrow(env[0]), borrow(env[1]), borrow(env[2]))
         b_bvh = (borrow(bvh[0]), borrow(bvh[1]), borrow(bvh[2]), borrow(bvh[3]))
         b_scene = (borrow(scene[0]), borrow(scene[1]), borrow(scene[2]), borrow(scene[3]),
                    borrow(scene[4]))  # fmt: skip

@@ -53,7 +53,7 @@ def medium_attenuation(ray, surf, wr, wg, wb):
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
-def spawn_transmission(surf, ray, tdx, tdy, tdz, tw0, tw1, tw2, can_trace, env_map, frame,
+def spawn_transmission(surf, ray, tdx, tdy, tdz, tw0, tw1, tw2, can_trace, env, frame,
                        stack, sp, work):  # fmt: skip
     """Push the transmitted ray with weight ``tw`` along ``t``, or add the environment seen
     along it; returns the stack size. The ray carries the absorption of the medium it enters.
@@ -73,7 +73,7 @@ def spawn_transmission(surf, ray, tdx, tdy, tdz, tw0, tw1, tw2, can_trace, env_m
                       0.0, nsr, nsg, nsb, 0.0)  # fmt: skip
         set_start(stack, sp, surf[S_PX], surf[S_PY], surf[S_PZ])
     else:
-        qr, qg, qb = env_radiance(env_map, frame, tdx, tdy, tdz, work)
+        qr, qg, qb = env_radiance(env, frame, tdx, tdy, tdz, work)
         work[W_ACC + 0] += tw0 * qr
         work[W_ACC + 1] += tw1 * qg
         work[W_ACC + 2] += tw2 * qb
