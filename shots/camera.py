@@ -50,6 +50,8 @@ class Camera:
     width, height : image size in pixels.
     yfov : vertical field of view in radians (perspective).
     ymag : half of the visible height in metres (orthographic, as glTF's ``ymag``).
+    znear : near clipping distance along the view axis in metres (0: none); a model's own
+        camera brings its ``znear`` (glTF 2.0 spec §3.10 "Cameras").
     """
 
     eye: tuple[float, float, float]
@@ -60,6 +62,7 @@ class Camera:
     yfov: float = math.radians(30.0)
     kind: str = PERSPECTIVE
     ymag: float = 1.0
+    znear: float = 0.0
 
     @property
     def aspect(self) -> float:

@@ -390,12 +390,13 @@ def centre_axis(across: np.ndarray, along: np.ndarray, depth: float, limit: floa
     return 0.5 * (right - left)
 
 
-def make_camera(eye, target, up, size, kind, yfov=0.5, ymag=1.0) -> Camera:
+def make_camera(eye, target, up, size, kind, yfov=0.5, ymag=1.0, znear=0.0) -> Camera:
     def triple(x):
         return (float(x[0]), float(x[1]), float(x[2]))
 
     return Camera(eye=triple(eye), target=triple(target), up=triple(up), width=size[0],
-                  height=size[1], yfov=float(yfov), kind=kind, ymag=float(ymag))
+                  height=size[1], yfov=float(yfov), kind=kind, ymag=float(ymag),
+                  znear=float(znear))
 
 
 # --- keyframed paths ----------------------------------------------------------------------
@@ -503,7 +504,8 @@ def camera_from_file(file_camera: FileCamera, size, extent: Extent) -> Camera:
 
     The view is the node's world transform without its scale: the eye at its translation,
     looking along its −Z with its +Y up. The image keeps the preset's height; its width follows
-    the camera's aspect ratio when the file gives one (W = round(H·aspectRatio)).
+    the camera's aspect ratio when the file gives one (W = round(H·aspectRatio)). Its ``znear``
+    clips what lies nearer to the lens than the near plane.
     """
     world = np.asarray(file_camera.world, np.float64)
     axes = world[:3, :3] / np.linalg.norm(world[:3, :3], axis=0)
@@ -518,5 +520,7 @@ def camera_from_file(file_camera: FileCamera, size, extent: Extent) -> Camera:
     reach = float((extent.centre - eye) @ forward)
     target = eye + forward * (reach if reach > 0.0 else extent.radius)
     if file_camera.kind == ORTHOGRAPHIC:
-        return make_camera(eye, target, up, (width, height), ORTHOGRAPHIC, ymag=ymag)
-    return make_camera(eye, target, up, (width, height), PERSPECTIVE, yfov=file_camera.yfov)
+        return make_camera(eye, target, up, (width, height), ORTHOGRAPHIC, ymag=ymag,
+                           znear=file_camera.znear)
+    return make_camera(eye, target, up, (width, height), PERSPECTIVE, yfov=file_camera.yfov,
+                       znear=file_camera.znear)

@@ -246,6 +246,7 @@ def pack_frame(
     row[layout.F_ASPECT] = camera.aspect
     row[layout.F_ORTHO] = 1.0 if camera.kind == ORTHOGRAPHIC else 0.0
     row[layout.F_YMAG] = camera.ymag
+    row[layout.F_ZNEAR] = camera.znear
     row[layout.F_WIDTH] = camera.width
     row[layout.F_HEIGHT] = camera.height
     row[layout.F_SAMPLES] = max(int(look.samples), 1)  # per stratified set; passes reset it

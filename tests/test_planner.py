@@ -363,6 +363,8 @@ def test_file_camera_view_is_the_node_transform_without_scale():
     assert (camera.width, camera.height) == (120, 80)  # Spec §Cameras: aspectRatio = W / H
     plan = camera_from_file(scene.cameras[1], (100, 80), Extent.of(scene))
     assert plan.kind == ORTHOGRAPHIC and plan.ymag == 1.0 and plan.width == 160
+    # Spec §Cameras: znear is the near clipping plane; both kinds keep the file's value
+    assert camera.znear == 0.1 and plan.znear == 0.1
 
 
 def test_file_cameras_by_name_and_index_and_helpful_refusals():

@@ -6,7 +6,7 @@ import numba
 import numpy as np
 import OpenEXR
 import pytest
-from scenes import diffuse, look, ortho_camera, quad, render, sphere
+from scenes import diffuse, look, merge, ortho_camera, quad, render, sphere
 
 from shots.camera import ORTHOGRAPHIC, Camera
 from shots.colour import srgb_to_linear
@@ -218,3 +218,24 @@ def test_equirect_convention_and_rotation():
     assert tuple(out) == (1.0, 0.0, 0.0)
     sample_equirect(img, -1.0, 0.0, 0.0, math.pi, 1.0, out)
     assert tuple(out) == (0.0, 0.0, 1.0)
+
+
+@pytest.mark.parametrize("kind", ["perspective", ORTHOGRAPHIC])
+def test_near_plane_clips_what_lies_nearer_than_znear(kind):
+    # glTF 2.0 spec §3.10 "Cameras": znear is the distance to the near clipping plane, measured
+    # along the view axis, so a surface in front of it is not drawn and what lies behind shows
+    near = quad(size=4.0, center=(0, 0, 2.0), rows=[diffuse((1.0, 0.0, 0.0), P_UNLIT=1.0)])
+    far = quad(size=4.0, center=(0, 0, 0.0), rows=[diffuse((0.0, 0.0, 1.0), P_UNLIT=1.0)])
+    scene = merge(near, far)
+    extra = {"ymag": 1.0} if kind == ORTHOGRAPHIC else {}
+    seen = {}
+    for znear in (0.0, 2.5, 3.5):  # the red quad is 3 m from the eye, the blue one 5 m
+        camera = Camera(eye=(0, 0, 5), target=(0, 0, 0), up=(0, 1, 0), width=9, height=9,
+                        kind=kind, znear=znear, **extra)
+        image = render(scene, camera, look(samples=4))
+        seen[znear] = image[4, 4, :3]
+        # the corner pixel looks 0.4 m off axis: its ray meets the plane later than znear
+        assert np.allclose(image[0, 0, :3], image[4, 4, :3], atol=1e-6)
+    assert seen[0.0][0] > 0.9 and seen[0.0][2] < 0.1  # red in front
+    assert seen[2.5][0] > 0.9 and seen[2.5][2] < 0.1  # the plane lies before the red quad
+    assert seen[3.5][2] > 0.9 and seen[3.5][0] < 0.1  # clipped: the blue quad behind shows

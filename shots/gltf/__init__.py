@@ -81,7 +81,6 @@ def _build(doc: Document, choice, limits: Limits) -> Scene:
     builder.warn_dropped()
     notes.unused_features(doc, nodes)
     cameras = file_cameras(doc, nodes)
-    notes.camera_notes(doc, cameras)
     mesh = assemble(doc, builder.pieces, len(doc.variant_names))
     if mesh.triangles.shape[0] == 0:
         doc.warn("the scene has no triangles to render")

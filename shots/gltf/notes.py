@@ -59,10 +59,3 @@ def unused_features(doc: Document, nodes: list[tuple[int, np.ndarray]]) -> None:
     if animations:
         doc.ignore(f"{len(animations)} animation(s) not played: drawn in the rest pose")
 
-
-def camera_notes(doc: Document, cameras) -> None:
-    """A file camera's znear is not honoured: camera rays start at the lens (glTF 2.0 spec
-    §Cameras: znear is the near clipping plane)."""
-    near = [c for c in cameras if c.znear > 0]
-    if near:
-        doc.ignore(f"znear of {len(near)} file camera(s) not honoured: no near clipping")

@@ -37,6 +37,7 @@ from shots.kernels.layout import (
     F_W,
     F_WIDTH,
     F_YMAG,
+    F_ZNEAR,
     W_ACC,
     W_CONE,
     W_SPREAD,
@@ -78,7 +79,8 @@ def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env, b
     # the ray being traced lives in the stack's last row; the camera ray starts there, so the
     # many that see only the background never touch the stack
     ray = stack[STACK_RAYS - 1]
-    set_ray(ray, ox, oy, oz, dx, dy, dz, 1.0, 1.0, 1.0, 1.0, 0, 0.0, 0.0, 0.0, 0.0, 1.0)
+    set_ray(ray, ox, oy, oz, dx, dy, dz, 1.0, 1.0, 1.0, 1.0, 0, near_start(frame, dx, dy, dz),
+            0.0, 0.0, 0.0, 1.0)  # fmt: skip
     ray[R_CONE], ray[R_SPREAD] = pixel_cone(frame)
     sp = 0
     while True:
@@ -147,6 +149,18 @@ def pixel_cone(frame):
     if frame[F_ORTHO] != 0.0:
         return 2.0 * frame[F_YMAG] / height, 0.0
     return 0.0, math.atan(2.0 * frame[F_TAN_Y] / height)
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def near_start(frame, dx, dy, dz):
+    """Where a camera ray along unit (dx, dy, dz) crosses the near clipping plane, the plane
+    ``znear`` in front of the lens across the view axis (glTF 2.0 spec §3.10: "znear: the
+    floating-point distance to the near clipping plane"); 0 when there is none."""
+    znear = frame[F_ZNEAR]
+    if znear <= 0.0:
+        return 0.0
+    along = -(dx * frame[F_W] + dy * frame[F_W + 1] + dz * frame[F_W + 2])  # cos to the axis
+    return znear / along if along > 0.0 else 0.0
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)

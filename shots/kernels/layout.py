@@ -34,7 +34,8 @@ F_EYE, F_U, F_V, F_W = 0, 3, 6, 9
 F_TAN_Y, F_ASPECT, F_ORTHO, F_YMAG = 12, 13, 14, 15
 # settings (integers stored as float64)
 F_WIDTH, F_HEIGHT, F_SAMPLES, F_AREA_SAMPLES, F_GLOSSY_SAMPLES = 16, 17, 18, 19, 20
-F_MAX_DEPTH, F_SEED, F_SEE_THROUGH, F_BACKGROUND = 21, 22, 23, 24  # 25: free
+F_MAX_DEPTH, F_SEED, F_SEE_THROUGH, F_BACKGROUND = 21, 22, 23, 24
+F_ZNEAR = 25  # near clipping plane's distance along the view axis (m); 0: none
 F_BG_TOP, F_BG_BOTTOM = 26, 29  # linear rgb
 F_SH = 32  # 9 × 3 SH irradiance coefficients, row-major
 F_ENV_ROTATION = 59
