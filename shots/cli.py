@@ -17,6 +17,7 @@ from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
 
+import shots
 from shots.batch.cli_command import batch
 from shots.errors import ShotsError
 
@@ -38,6 +39,24 @@ def fail(message: str, code: int = 2) -> None:
 def warn(message: str) -> None:
     """Print one warning line on stderr, unwrapped (a hint must stay greppable as one line)."""
     err.print(f"[yellow]warning:[/] {escape(message)}", highlight=False, soft_wrap=True)
+
+
+def show_version(value: bool) -> None:
+    """``--version``: print the version (the renderer version in every frame's key) and stop."""
+    if value:
+        out.print(f"shots {shots.__version__}", highlight=False)
+        raise typer.Exit()
+
+
+@app.callback()
+def options(
+    version: Annotated[
+        bool,
+        typer.Option("--version", callback=show_version, is_eager=True,
+                     help="Print the version and exit."),
+    ] = False,
+) -> None:
+    """Options that come before the command."""
 
 
 def parse_size(text: str | None) -> tuple[int, int] | None:
@@ -76,18 +95,20 @@ def render(
 ) -> None:
     """Render one model with a preset's shots (default: one three-quarter still)."""
     from shots.pipeline import render_model
+    from shots.warmup import announce_compiles
 
     try:
-        written = render_model(
-            model,
-            output,
-            preset,
-            size=parse_size(size),
-            scene_choice=parse_scene(scene),
-            variant=variant,
-            on_frame=lambda r: out.print(f"wrote {r.path}", highlight=False),
-            on_warning=lambda text: warn(f"{model}: {text}"),
-        )
+        with announce_compiles(err):
+            written = render_model(
+                model,
+                output,
+                preset,
+                size=parse_size(size),
+                scene_choice=parse_scene(scene),
+                variant=variant,
+                on_frame=lambda r: out.print(f"wrote {r.path}", highlight=False),
+                on_warning=lambda text: warn(f"{model}: {text}"),
+            )
     except ShotsError as exc:
         fail(str(exc))
     out.print(f"{len(written)} image(s) in {output}", highlight=False)

@@ -98,7 +98,7 @@ def on_dask_worker(fn, host_threads: dict[str, int], *args):
     """
     from urllib.parse import urlsplit
 
-    from distributed import get_worker
+    from dask.distributed import get_worker
 
     host = urlsplit(get_worker().address).hostname or ""
     set_threads(max(1, (os.cpu_count() or 1) // max(1, host_threads.get(host, 1))))
