@@ -29,7 +29,7 @@ import numpy as np
 from numba import njit, prange
 
 from shots.accel import intersect_any, intersect_closest, offset_origins
-from shots.kernels import shade
+from shots.kernels import camera_sample
 from shots.kernels.sampling import spread_count
 from shots.planner import plan_frames
 from shots.presets import apply_model_fixes, load_preset
@@ -98,8 +98,8 @@ def camera_samples(frame, width, height, spp, seed):
         for i in range(width):
             pixel = j * width + i
             for s in range(spp):
-                fx, fy = shade.sample_offset(spp, s, seed, pixel)
-                ox, oy, oz, dx, dy, dz = shade.camera_ray(frame, i + fx, j + fy)
+                fx, fy = camera_sample.sample_offset(spp, s, seed, pixel)
+                ox, oy, oz, dx, dy, dz = camera_sample.camera_ray(frame, i + fx, j + fy)
                 k = pixel * spp + s
                 origins[k, 0], origins[k, 1], origins[k, 2] = ox, oy, oz
                 directions[k, 0], directions[k, 1], directions[k, 2] = dx, dy, dz

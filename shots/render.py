@@ -3,7 +3,7 @@
     prepared = prepare_scene(scene)                 # once per model
     rgba = render_frame(prepared, camera, look)     # (h, w, 4) float32, premultiplied linear
 
-Everything per pixel happens in one numba kernel (``shots.kernels.shade.render_image``); this
+Everything per pixel happens in one numba kernel (``shots.kernels.image.render_image``); this
 module only packs the scene, the look, the camera and the floor into the flat arrays it reads.
 
 Image formation
@@ -40,7 +40,7 @@ from shots.colour import srgb_to_linear
 from shots.environment import environment_map
 from shots.errors import RenderError
 from shots.kernels import ground as gk
-from shots.kernels import layout, shade
+from shots.kernels import image, layout
 from shots.kernels import lights as lk
 from shots.look import AREA, DIRECTIONAL, POINT, SPOT, Environment, Ground, Light, Look
 from shots.scene import (
@@ -270,7 +270,7 @@ def render_frame(prepared: PreparedScene, camera: Camera, look: Look) -> np.ndar
         raise RenderError("<camera>", "size", f"bad image size {camera.width}x{camera.height}")
     out = np.zeros((camera.height, camera.width, 4), np.float32)
     radiance, sh = _environment(look.environment)
-    shade.render_image(
+    image.render_image(
         out,
         pack_frame(camera, look, prepared.see_through, sh, prepared.bounds),
         pack_lights(look.lights),

@@ -18,7 +18,7 @@ from shots.environment import (
     load_hdr_image,
 )
 from shots.errors import RenderError
-from shots.kernels.shade import camera_ray
+from shots.kernels.camera_sample import camera_ray
 from shots.kernels.texture import equirect_uv, sample_equirect
 from shots.look import Background, Environment, Light
 from shots.render import pack_frame, prepare_scene, render_frame

@@ -24,7 +24,7 @@ from scenes import (
 )
 
 from shots.kernels import sheen
-from shots.kernels.shade import eval_bsdf
+from shots.kernels.bsdf import eval_bsdf
 from shots.kernels.surface import (
     N_SURFACE,
     S_BASE_B,

@@ -10,6 +10,8 @@ import math
 
 from numba import njit
 
+from shots.kernels.layout import W_DIM
+
 MASK32 = 0xFFFFFFFF
 
 
@@ -127,3 +129,21 @@ def spread_stratum(i, n_hit, sample, samples, key, u1, u2):
 def pixel_key(seed, pixel, purpose):
     """A hash fixed for one pixel and one use (a light, the glossy lobe), shared by its samples."""
     return pcg_hash((pcg_hash((seed ^ (purpose * 0x85EBCA6B)) & MASK32) ^ pixel) & MASK32)
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def next_pair(seed, pixel, sample, work):
+    """The next two numbers of this camera sample's sequence (counter in work[W_DIM]).
+
+    Both come from one 32-bit hash, 16 bits each: they only jitter a point inside a stratum.
+    """
+    d = int(work[W_DIM])
+    work[W_DIM] = d + 1
+    h = random_bits(seed, pixel, sample, d)
+    return ((h & 0xFFFF) + 0.5) * (1.0 / 65536.0), ((h >> 16) + 0.5) * (1.0 / 65536.0)
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def luminance(r, g, b):
+    """Relative luminance of linear Rec.709 RGB (ITU-R BT.709)."""
+    return 0.2126 * r + 0.7152 * g + 0.0722 * b

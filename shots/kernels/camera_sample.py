@@ -1,0 +1,149 @@
+"""One camera sample: the camera ray through a sub-pixel position, and the ray tree it grows.
+
+The sample's rays are traced depth-first from a small per-thread stack (``shots.kernels.raystack``):
+surface hits are shaded (``shots.kernels.shade``), the shadow catcher turns the product's shadow
+into alpha, and rays that leave the scene see the background or the environment.
+"""
+
+from __future__ import annotations
+
+import math
+
+from numba import njit
+
+from shots.kernels.direct import shadow_amount
+from shots.kernels.envlight import env_radiance
+from shots.kernels.ground import (
+    G_KIND,
+    G_STRENGTH,
+    GROUND_CATCHER,
+)
+from shots.kernels.layout import (
+    BG_ENVIRONMENT,
+    BG_TRANSPARENT,
+    F_AREA_SAMPLES,
+    F_ASPECT,
+    F_BACKGROUND,
+    F_CONTACT_SAMPLES,
+    F_EYE,
+    F_HEIGHT,
+    F_ORTHO,
+    F_SAMPLES,
+    F_SEE_THROUGH,
+    F_SEED,
+    F_TAN_Y,
+    F_U,
+    F_V,
+    F_W,
+    F_WIDTH,
+    F_YMAG,
+    W_ACC,
+)
+from shots.kernels.raystack import (
+    N_RAY,
+    R_CAMERA,
+    R_COVER,
+    R_D,
+    R_O,
+    R_TMIN,
+    R_W,
+    STACK_RAYS,
+    set_ray,
+)
+from shots.kernels.sampling import (
+    random_bits,
+    stratum,
+    tent_warp,
+)
+from shots.kernels.shade import shade_hit
+from shots.kernels.visibility import find_surface
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env_map, bvh, scene,
+                 ground, pixel, sample, stack, surf, surf2, work, tstack):  # fmt: skip
+    """Trace one camera ray and its tree; adds premultiplied RGBA into work[W_ACC:+4].
+
+    ``stack`` (STACK_RAYS, N_RAY), ``surf``, ``surf2`` (N_SURFACE,) and ``work`` are scratch.
+    """
+    background = int(frame[F_BACKGROUND])
+    # the ray being traced lives in the stack's last row; the camera ray starts there, so the
+    # many that see only the background never touch the stack
+    ray = stack[STACK_RAYS - 1]
+    set_ray(ray, ox, oy, oz, dx, dy, dz, 1.0, 1.0, 1.0, 1.0, 0, 0.0, 0.0, 0.0, 0.0, 1.0)
+    sp = 0
+    while True:
+        rox, roy, roz = ray[R_O], ray[R_O + 1], ray[R_O + 2]
+        rdx, rdy, rdz = ray[R_D], ray[R_D + 1], ray[R_D + 2]
+        camera = ray[R_CAMERA] != 0.0
+        t, what = find_surface(bvh, scene, ground, rox, roy, roz, rdx, rdy, rdz, ray[R_TMIN],
+                               camera, surf, work, tstack)  # fmt: skip
+        if what == 2 and camera and int(ground[G_KIND]) == GROUND_CATCHER:
+            # invisible floor: its shadow becomes coverage of black (premultiplied: alpha only);
+            # the rest of the ray shows the background (nothing stands below the floor)
+            shadow = shadow_amount(surf, lights, int(frame[F_AREA_SAMPLES]),
+                                   int(frame[F_CONTACT_SAMPLES]), int(frame[F_SAMPLES]),
+                                   int(frame[F_SEED]), pixel, sample, frame, bvh, scene,
+                                   ground, frame[F_SEE_THROUGH] != 0.0, surf2, work,
+                                   tstack)  # fmt: skip
+            a = min(shadow * ground[G_STRENGTH], 1.0)
+            work[W_ACC + 3] += ray[R_COVER] * a
+            for c in range(3):
+                ray[R_W + c] *= 1.0 - a
+            ray[R_COVER] *= 1.0 - a
+            what = 0
+        if what != 0:
+            sp = shade_hit(surf, ray, t, frame, lights, env_map, bvh, scene, ground, pixel, sample,
+                           stack, sp, surf2, work, tstack)  # fmt: skip
+        elif camera and background != BG_ENVIRONMENT:
+            if background != BG_TRANSPARENT:
+                work[W_ACC] += ray[R_W] * bg_r
+                work[W_ACC + 1] += ray[R_W + 1] * bg_g
+                work[W_ACC + 2] += ray[R_W + 2] * bg_b
+                work[W_ACC + 3] += ray[R_COVER]
+        else:
+            qr, qg, qb = env_radiance(env_map, frame, rdx, rdy, rdz, work)
+            work[W_ACC] += ray[R_W] * qr
+            work[W_ACC + 1] += ray[R_W + 1] * qg
+            work[W_ACC + 2] += ray[R_W + 2] * qb
+            if camera:
+                work[W_ACC + 3] += ray[R_COVER]
+        if sp == 0:
+            return
+        sp -= 1
+        for c in range(N_RAY):  # element copy: a slice copy between views of one array allocates
+            ray[c] = stack[sp, c]
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def camera_ray(frame, px, py):
+    """The ray through image position (px right, py down, in pixels), as ``Camera.rays_at``."""
+    sx = 2.0 * px / frame[F_WIDTH] - 1.0
+    sy = 1.0 - 2.0 * py / frame[F_HEIGHT]
+    if frame[F_ORTHO] != 0.0:
+        xm = frame[F_YMAG] * frame[F_ASPECT]
+        ym = frame[F_YMAG]
+        ox = frame[F_EYE] + sx * xm * frame[F_U] + sy * ym * frame[F_V]
+        oy = frame[F_EYE + 1] + sx * xm * frame[F_U + 1] + sy * ym * frame[F_V + 1]
+        oz = frame[F_EYE + 2] + sx * xm * frame[F_U + 2] + sy * ym * frame[F_V + 2]
+        return ox, oy, oz, -frame[F_W], -frame[F_W + 1], -frame[F_W + 2]
+    a = sx * frame[F_TAN_Y] * frame[F_ASPECT]
+    b = sy * frame[F_TAN_Y]
+    dx = a * frame[F_U] + b * frame[F_V] - frame[F_W]
+    dy = a * frame[F_U + 1] + b * frame[F_V + 1] - frame[F_W + 1]
+    dz = a * frame[F_U + 2] + b * frame[F_V + 2] - frame[F_W + 2]
+    n = math.sqrt(dx * dx + dy * dy + dz * dz)
+    return frame[F_EYE], frame[F_EYE + 1], frame[F_EYE + 2], dx / n, dy / n, dz / n
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def sample_offset(spp, s, seed, pixel):
+    """Sub-pixel position of camera sample ``s``: the centre for one sample, else a jittered
+    grid warped to the tent filter of radius 1 px (filter importance sampling)."""
+    if spp == 1:
+        return 0.5, 0.5
+    h = random_bits(seed, pixel, s, 0)
+    u1 = ((h & 0xFFFF) + 0.5) * (1.0 / 65536.0)
+    u2 = ((h >> 16) + 0.5) * (1.0 / 65536.0)
+    a, b = stratum(s, spp, u1, u2)
+    return 0.5 + tent_warp(a), 0.5 + tent_warp(b)

@@ -1,0 +1,99 @@
+"""The image: every pixel's camera samples in one parallel kernel → premultiplied linear RGBA.
+
+Inputs are few wide arrays (``shots.kernels.layout``); the BVH and the scene go as tuples:
+    bvh = (node_bounds, node_links, tri_verts, tri_ids)          shots.accel.Bvh
+    scene = (verts, faces, materials, texels, tex_info)          packed by shots.render
+Everything is borrowed (``shots.kernels.borrow``) at the top of each parallel work item; pixels
+are independent, and tiles are dealt to work items round-robin, each with its own scratch.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit, prange
+
+from shots.kernels.borrow import borrow
+from shots.kernels.camera_sample import camera_ray, sample_offset, trace_sample
+from shots.kernels.layout import (
+    F_BG_BOTTOM,
+    F_BG_TOP,
+    F_HEIGHT,
+    F_SAMPLES,
+    F_SEED,
+    F_WIDTH,
+    N_WORK,
+    W_ACC,
+    W_DIM,
+)
+from shots.kernels.raystack import (
+    N_RAY,
+    STACK_RAYS,
+)
+from shots.kernels.surface import (
+    N_SURFACE,
+)
+from shots.kernels.traverse import new_stack
+
+TILE = 8  # pixels per tile edge
+WORK_ITEMS = 256  # parallel items; tiles are dealt round-robin so threads stay balanced
+
+
+# No fastmath here: numba passes it on to the callees it compiles, and contracting the
+# watertight edge functions into FMAs lets rays through shared edges (Woop et al. 2013).
+@njit(cache=True, parallel=True, error_model="numpy")
+def render_image(out, frame, lights, env_map, ground, bvh, scene):
+    """Render every pixel into ``out``.
+
+    Parameters
+    ----------
+    out : (h, w, 4) float32, receives premultiplied linear RGBA.
+    frame : (N_FRAME,) float64 camera, settings, background and SH (``shots.kernels.layout``).
+    lights : (k, N_LIGHT_COLS) float64; env_map : (eh, ew, 3) float32 linear radiance;
+    ground : (N_GROUND,) float64; bvh, scene : see the module docstring.
+    """
+    width = int(frame[F_WIDTH])
+    height = int(frame[F_HEIGHT])
+    spp = max(int(frame[F_SAMPLES]), 1)
+    seed = int(frame[F_SEED])
+    tiles_x = (width + TILE - 1) // TILE
+    tiles = tiles_x * ((height + TILE - 1) // TILE)
+    for item in prange(WORK_ITEMS):
+        # scratch owned here; the loops below use borrowed (uncounted) views of everything
+        owned = (new_stack(), np.empty((STACK_RAYS, N_RAY), np.float64),
+                 np.zeros((2, N_SURFACE), np.float64), np.zeros(N_WORK, np.float64))  # fmt: skip
+        tstack, stack, surfs, work = borrow(owned[0]), borrow(owned[1]), borrow(owned[2]), borrow(
+            owned[3]
+        )
+        surf, surf2 = surfs[0], surfs[1]
+        b_frame, b_lights, b_env, b_ground = borrow(frame), borrow(lights), borrow(env_map), borrow(
+            ground
+        )
+        b_bvh = (borrow(bvh[0]), borrow(bvh[1]), borrow(bvh[2]), borrow(bvh[3]))
+        b_scene = (borrow(scene[0]), borrow(scene[1]), borrow(scene[2]), borrow(scene[3]),
+                   borrow(scene[4]))  # fmt: skip
+        for tile in range(item, tiles, WORK_ITEMS):
+            x0 = (tile % tiles_x) * TILE
+            y0 = (tile // tiles_x) * TILE
+            for j in range(y0, min(y0 + TILE, height)):
+                for i in range(x0, min(x0 + TILE, width)):
+                    pixel = j * width + i
+                    for c in range(4):
+                        work[W_ACC + c] = 0.0
+                    for s in range(spp):
+                        fx, fy = sample_offset(spp, s, seed, pixel)
+                        ox, oy, oz, dx, dy, dz = camera_ray(b_frame, i + fx, j + fy)
+                        f = min(max((j + fy) / height, 0.0), 1.0)
+                        bg_r = (1.0 - f) * frame[F_BG_TOP] + f * frame[F_BG_BOTTOM]
+                        bg_g = (1.0 - f) * frame[F_BG_TOP + 1] + f * frame[F_BG_BOTTOM + 1]
+                        bg_b = (1.0 - f) * frame[F_BG_TOP + 2] + f * frame[F_BG_BOTTOM + 2]
+                        work[W_DIM] = 1.0  # dimension 0 placed the sample
+                        trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, b_frame, b_lights,
+                                     b_env, b_bvh, b_scene, b_ground, pixel, s, stack, surf,
+                                     surf2, work, tstack)  # fmt: skip
+                    for c in range(4):
+                        value = work[W_ACC + c] / spp
+                        # a degenerate input (NaN normal, zero-area light) must not spread
+                        out[j, i, c] = value if math.isfinite(value) else 0.0
+        owned[3][W_DIM] = 0.0  # the scratch stays owned (alive) until here, past its views

@@ -1,0 +1,149 @@
+"""Light reflected off the surface: the specular lobe and the clearcoat layer.
+
+Smooth surfaces send one mirror ray; glossy ones several GGX-sampled rays (visible normals,
+Heitz 2018), weighted by Fresnel; rough lobes take the SH-blurred environment along the mirror
+direction instead (tracing them mostly adds noise).
+"""
+
+from __future__ import annotations
+
+from numba import njit
+
+from shots.kernels.brdf import (
+    INV_PI,
+    alpha_of,
+    sample_ggx_vndf,
+    smith_g1,
+    smith_vis,
+)
+from shots.kernels.envlight import env_radiance, sh_irradiance
+from shots.kernels.layout import (
+    F_GLOSSY_SAMPLES,
+    F_SAMPLES,
+    F_SEED,
+    W_ACC,
+)
+from shots.kernels.raystack import (
+    MIN_WEIGHT,
+    R_D,
+    R_DEPTH,
+    R_SIGMA,
+    push_ray,
+    set_start,
+)
+from shots.kernels.sampling import (
+    next_pair,
+    orthonormal_basis,
+    pixel_key,
+    spread_count,
+    spread_stratum,
+)
+from shots.kernels.surface import (
+    S_CX,
+    S_CY,
+    S_CZ,
+    S_GX,
+    S_GY,
+    S_GZ,
+    S_METALLIC,
+    S_NX,
+    S_NY,
+    S_NZ,
+    S_PX,
+    S_PY,
+    S_PZ,
+    S_ROUGHNESS,
+)
+from shots.kernels.visibility import offset_point
+
+MIRROR_ROUGHNESS = 0.03  # below: one ideal mirror ray (α ≤ 1e-3, a delta in practice)
+# At and above these roughnesses a lobe is taken as blurred environment light instead of traced:
+# a dielectric reflects only ~4 % and its blurred highlight hides in noise, a metal shows it all.
+GLOSSY_DIELECTRIC = 0.3
+GLOSSY_METAL = 0.6
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def spawn_reflection(surf, ray, rw0, rw1, rw2, can_trace, frame, lights, env_map, pixel, sample,
+                     stack, sp, work):  # fmt: skip
+    """Reflect light of weight ``rw`` off the base layer; returns the stack size."""
+    seed = int(frame[F_SEED])
+    depth = int(ray[R_DEPTH])
+    sr, sg, sb = ray[R_SIGMA], ray[R_SIGMA + 1], ray[R_SIGMA + 2]
+    vx, vy, vz = -ray[R_D], -ray[R_D + 1], -ray[R_D + 2]
+    nx, ny, nz = surf[S_NX], surf[S_NY], surf[S_NZ]
+    px, py, pz = surf[S_PX], surf[S_PY], surf[S_PZ]
+    n_dot_v = max(nx * vx + ny * vy + nz * vz, 1e-4)
+    roughness = surf[S_ROUGHNESS]
+    rx, ry, rz = 2.0 * n_dot_v * nx - vx, 2.0 * n_dot_v * ny - vy, 2.0 * n_dot_v * nz - vz
+    ox, oy, oz = offset_point(surf, 1.0)
+    glossy_limit = GLOSSY_DIELECTRIC + (GLOSSY_METAL - GLOSSY_DIELECTRIC) * surf[S_METALLIC]
+    if roughness >= glossy_limit:
+        # a wide lobe: the environment blurred like irradiance, seen along the mirror
+        # direction (no occlusion) instead of noisy rays
+        qr, qg, qb = sh_irradiance(frame, rx, ry, rz)
+        work[W_ACC + 0] += rw0 * qr * INV_PI
+        work[W_ACC + 1] += rw1 * qg * INV_PI
+        work[W_ACC + 2] += rw2 * qb * INV_PI
+        return sp
+    if roughness < MIRROR_ROUGHNESS or not can_trace:
+        if can_trace and max(rw0, rw1, rw2) >= MIN_WEIGHT:
+            sp = push_ray(stack, sp, ox, oy, oz, rx, ry, rz, rw0, rw1, rw2, 0.0, depth + 1, 0.0,
+                          sr, sg, sb, 0.0)  # fmt: skip
+            set_start(stack, sp, px, py, pz)
+        else:
+            qr, qg, qb = env_radiance(env_map, frame, rx, ry, rz, work)
+            work[W_ACC + 0] += rw0 * qr
+            work[W_ACC + 1] += rw1 * qg
+            work[W_ACC + 2] += rw2 * qb
+        return sp
+    spp = int(frame[F_SAMPLES])
+    n_glossy = spread_count(int(frame[F_GLOSSY_SAMPLES]), spp) if depth == 0 else 1
+    key = pixel_key(seed, pixel, lights.shape[0] + 1 + depth)
+    alpha = alpha_of(roughness)
+    t1x, t1y, t1z, t2x, t2y, t2z = orthonormal_basis(nx, ny, nz)
+    lvx = vx * t1x + vy * t1y + vz * t1z
+    lvy = vx * t2x + vy * t2y + vz * t2z
+    g1 = smith_g1(n_dot_v, alpha)
+    for s in range(n_glossy):
+        r1, r2 = next_pair(seed, pixel, sample, work)
+        a1, a2 = spread_stratum(s, n_glossy, sample, spp, key, r1, r2)
+        hx_, hy_, hz_ = sample_ggx_vndf(lvx, lvy, n_dot_v, alpha, a1, a2)
+        hx = hx_ * t1x + hy_ * t2x + hz_ * nx
+        hy = hx_ * t1y + hy_ * t2y + hz_ * ny
+        hz = hx_ * t1z + hy_ * t2z + hz_ * nz
+        v_dot_h = vx * hx + vy * hy + vz * hz
+        lx = 2.0 * v_dot_h * hx - vx
+        ly = 2.0 * v_dot_h * hy - vy
+        lz = 2.0 * v_dot_h * hz - vz
+        n_dot_l = lx * nx + ly * ny + lz * nz
+        if n_dot_l <= 0.0 or lx * surf[S_GX] + ly * surf[S_GY] + lz * surf[S_GZ] <= 0.0:
+            continue
+        # estimator weight F·G2/G1 (Heitz 2018, eq. 19); rw carries F's colour and split
+        g2 = smith_vis(n_dot_l, n_dot_v, alpha) * 4.0 * n_dot_l * n_dot_v
+        k = g2 / g1 / n_glossy
+        sp = push_ray(stack, sp, ox, oy, oz, lx, ly, lz, rw0 * k, rw1 * k, rw2 * k, 0.0,
+                      depth + 1, 0.0, sr, sg, sb, 0.0)  # fmt: skip
+        set_start(stack, sp, px, py, pz)
+    return sp
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def spawn_coat(surf, ray, wr, wg, wb, coat, can_trace, frame, env_map, stack, sp, work):
+    """The clearcoat: a mirror-like layer of F0 0.04 on its own normal; returns the stack size."""
+    vx, vy, vz = -ray[R_D], -ray[R_D + 1], -ray[R_D + 2]
+    cx, cy, cz = surf[S_CX], surf[S_CY], surf[S_CZ]
+    cv = max(cx * vx + cy * vy + cz * vz, 1e-4)
+    qx, qy, qz = 2.0 * cv * cx - vx, 2.0 * cv * cy - vy, 2.0 * cv * cz - vz
+    if can_trace and coat * max(wr, wg, wb) >= MIN_WEIGHT:
+        ox, oy, oz = offset_point(surf, 1.0)
+        sp = push_ray(stack, sp, ox, oy, oz, qx, qy, qz, wr * coat, wg * coat, wb * coat,
+                      0.0, int(ray[R_DEPTH]) + 1, 0.0, ray[R_SIGMA], ray[R_SIGMA + 1],
+                      ray[R_SIGMA + 2], 0.0)  # fmt: skip
+        set_start(stack, sp, surf[S_PX], surf[S_PY], surf[S_PZ])
+    else:
+        qr, qg, qb = env_radiance(env_map, frame, qx, qy, qz, work)
+        work[W_ACC + 0] += wr * coat * qr
+        work[W_ACC + 1] += wg * coat * qg
+        work[W_ACC + 2] += wb * coat * qb
+    return sp

@@ -1,0 +1,143 @@
+"""Which surface a ray sees, and how much light a shadow ray lets through.
+
+Both skip what the glTF material says is not there: MASK cut-outs and the back faces of
+single-sided surfaces (glTF 2.0 spec §3.9.4–3.9.5); shadow rays also pass BLEND and transmissive
+surfaces in scenes that have them.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+from shots.kernels.ground import (
+    G_B,
+    G_G,
+    G_KIND,
+    G_R,
+    G_ROUGHNESS,
+    GROUND_CATCHER,
+    GROUND_NONE,
+    intersect_ground,
+)
+from shots.kernels.offset import offset_origin_one
+from shots.kernels.surface import (
+    S_BASE_B,
+    S_BASE_G,
+    S_BASE_R,
+    S_GX,
+    S_GY,
+    S_GZ,
+    S_METALLIC,
+    S_OPACITY,
+    S_PX,
+    S_PY,
+    S_PZ,
+    S_SKIP,
+    S_TRANSMISSION,
+    ground_surface,
+    mesh_surface,
+)
+from shots.kernels.traverse import any_hit_one, closest_hit_one
+
+MAX_SKIPS = 64  # cut-out and back-face hits passed through per ray
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def offset_point(surf, side):
+    """The hit point pushed off the surface, toward the ray's side (+1) or through it (−1)."""
+    return offset_origin_one(
+        surf[S_PX], surf[S_PY], surf[S_PZ],
+        side * surf[S_GX], side * surf[S_GY], side * surf[S_GZ],
+    )  # fmt: skip
+
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def find_surface(bvh, scene, ground, ox, oy, oz, dx, dy, dz, t_min, camera, surf, work, tstack):
+    """The first surface a ray sees, skipping cut-out and single-sided back-face hits.
+
+    Returns
+    -------
+    t : float, inf on a miss.
+    what : 0 miss, 1 mesh, 2 floor. ``surf`` holds the surface for hits.
+    """
+    node_bounds, node_links, tri_verts, tri_ids = bvh
+    verts, faces, materials, texels, tex_info = scene
+    kind = int(ground[G_KIND])
+    ground_seen = kind != GROUND_NONE and (kind != GROUND_CATCHER or camera)
+    t_lo = t_min
+    for _ in range(MAX_SKIPS):
+        t, k, b1, b2 = closest_hit_one(
+            node_bounds, node_links, tri_verts, tri_ids, ox, oy, oz, dx, dy, dz, t_lo, np.inf,
+            tstack,
+        )  # fmt: skip
+        if ground_seen:
+            tg, gnx, gny, gnz = intersect_ground(ground, ox, oy, oz, dx, dy, dz, t_lo, t)
+            if tg < t:
+                ground_surface(
+                    ox + tg * dx, oy + tg * dy, oz + tg * dz, gnx, gny, gnz,
+                    ground[G_R], ground[G_G], ground[G_B], ground[G_ROUGHNESS], surf,
+                )  # fmt: skip
+                return tg, 2
+        if k < 0:
+            return np.inf, 0
+        mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_info, surf, work)
+        if surf[S_SKIP] == 0.0 and surf[S_OPACITY] > 0.0:
+            return t, 1
+        t_lo = t * (1.0 + 1e-7) + 1e-9
+    return np.inf, 0
+
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def shadow_ray(frame, bvh, scene, ground, see_through, ox, oy, oz, dx, dy, dz, t_max, surf, work,
+               tstack):  # fmt: skip
+    """Light let through along a shadow ray (origin already offset) up to ``t_max``.
+
+    Opaque geometry blocks it; a visible floor blocks. Scenes with see-through materials take
+    ``light_through``. Returns r, g, b in [0, 1]. Inlined: shadow rays are most of a frame's
+    rays, and a call would pass every array of the scene on the stack.
+    """
+    kind = int(ground[G_KIND])
+    if kind != GROUND_NONE and kind != GROUND_CATCHER:
+        tg, _, _, _ = intersect_ground(ground, ox, oy, oz, dx, dy, dz, 0.0, t_max)
+        if tg < t_max:
+            return 0.0, 0.0, 0.0
+    if see_through:
+        return light_through(bvh, scene, ox, oy, oz, dx, dy, dz, t_max, surf, work, tstack)
+    node_bounds, node_links, tri_verts, _ = bvh
+    if any_hit_one(node_bounds, node_links, tri_verts, ox, oy, oz, dx, dy, dz, 0.0, t_max, tstack):
+        return 0.0, 0.0, 0.0
+    return 1.0, 1.0, 1.0
+
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def light_through(bvh, scene, ox, oy, oz, dx, dy, dz, t_max, surf, work, tstack):
+    """Light let through along a shadow ray past see-through surfaces up to ``t_max``.
+
+    Cut-outs pass it; BLEND surfaces pass 1 − α; transmissive surfaces pass their tint (no
+    refraction: caustics are out of scope). Returns r, g, b in [0, 1].
+    """
+    node_bounds, node_links, tri_verts, tri_ids = bvh
+    verts, faces, materials, texels, tex_info = scene
+    tr, tg, tb = 1.0, 1.0, 1.0
+    t_lo = 0.0
+    for _ in range(MAX_SKIPS):
+        t, k, b1, b2 = closest_hit_one(
+            node_bounds, node_links, tri_verts, tri_ids, ox, oy, oz, dx, dy, dz, t_lo, t_max,
+            tstack,
+        )  # fmt: skip
+        if k < 0:
+            return tr, tg, tb
+        mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_info, surf, work)
+        a = surf[S_OPACITY]
+        through = (1.0 - surf[S_METALLIC]) * surf[S_TRANSMISSION]
+        tr *= (1.0 - a) + a * through * surf[S_BASE_R]
+        tg *= (1.0 - a) + a * through * surf[S_BASE_G]
+        tb *= (1.0 - a) + a * through * surf[S_BASE_B]
+        if max(tr, tg, tb) <= 0.0:
+            return 0.0, 0.0, 0.0
+        t_lo = t * (1.0 + 1e-7) + 1e-9
+    return 0.0, 0.0, 0.0
