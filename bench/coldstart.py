@@ -49,6 +49,8 @@ t1 = time.perf_counter()
 from numba.core import event
 recorder = event.RecordingListener()
 event.register("numba:compile", recorder)
+llvm = event.TimingListener()  # time holding numba's LLVM lock: LLVM's optimiser and code gen
+event.register("numba:llvm_lock", llvm)
 report, sys.argv = sys.argv[1], ["shots", *sys.argv[2:]]
 try:
     shots.cli.main()
@@ -62,7 +64,8 @@ for stamp, ev in recorder.buffer:
     name = f"{disp.py_func.__module__}.{disp.py_func.__qualname__}"
     events.append([stamp, ev.is_start, name, str(tuple(ev.data["args"]))])
 with open(report, "w") as f:
-    json.dump({"imports": t1 - t0, "after_imports": t2 - t1, "events": events}, f)
+    json.dump({"imports": t1 - t0, "after_imports": t2 - t1, "events": events,
+               "llvm": llvm.duration if llvm.done else 0.0}, f)
 """
 
 # Put on PYTHONPATH for the batch: every process (the batch and its spawned workers) appends its
@@ -148,11 +151,39 @@ def print_compiles(events: list) -> float:
         if seconds >= 0.05 or count > 1:
             print(f"{name.removeprefix('shots.kernels.'):<52} {count:>5} {seconds:>8.2f} "
                   f"{seconds / max(total, 1e-9):>6.0%}")
-    several = {k: v for k, v in per_kernel.items() if v[1] > 1}
+    several = sorted(k for k, v in per_kernel.items() if v[1] > 1 and k.startswith("shots."))
     if several:
-        print("compiled for more than one type signature: "
-              + ", ".join(f"{k.removeprefix('shots.kernels.')} ×{v[1]}" for k, v in several.items()))
+        print("\nshots functions compiled for more than one type signature:")
+    for name in several:
+        signatures = {signature: seconds for (other, signature), seconds in own.items()
+                      if other == name}
+        print(f"  {name.removeprefix('shots.kernels.')}: {differing_arguments(list(signatures))}"
+              f", {sum(signatures.values()):.1f} s in all")
     return total
+
+
+def top_level_items(text: str) -> list[str]:
+    """'a(b, c), d' → ['a(b, c)', 'd']: split at commas outside brackets."""
+    items, depth, start = [], 0, 0
+    for i, char in enumerate(text):
+        depth += (char in "([") - (char in ")]")
+        if char == "," and depth == 0:
+            items.append(text[start:i].strip())
+            start = i + 1
+    last = text[start:].strip()
+    return items + [last] if last else items
+
+
+def differing_arguments(signatures: list[str]) -> str:
+    """Where type signatures (``str`` of a tuple of numba types) differ: 'arg 3: int64 | uint64'."""
+    split = [top_level_items(s[1:-1]) for s in signatures]
+    if len({len(args) for args in split}) > 1:
+        return "different argument counts"
+    parts = []
+    for position, types in enumerate(zip(*split, strict=True)):
+        if len(set(types)) > 1:
+            parts.append(f"arg {position}: {' | '.join(dict.fromkeys(types))}")
+    return "; ".join(parts)
 
 
 def render_twice(model: Path, work: Path) -> dict:
@@ -205,6 +236,7 @@ def main() -> None:
         print(f"{'cold render (64x64, empty cache)':<34} {cold['wall']:>8.1f} {cold['cpu']:>8.1f}")
         print(f"{'  of which imports':<34} {cold['imports']:>8.2f}")
         print(f"{'  of which numba compiles':<34} {compile_seconds:>8.1f}")
+        print(f"{'    of which in LLVM':<34} {cold['llvm']:>8.1f}")
         print(f"{'warm render (same cache)':<34} {warm['wall']:>8.2f} {warm['cpu']:>8.2f}")
         print(f"{'  of which imports':<34} {warm['imports']:>8.2f}")
         print(f"{'  warm start (after imports)':<34} {warm['after_imports']:>8.2f}")
