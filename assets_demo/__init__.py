@@ -1,1 +1,1 @@
-"""The invented Tavlund Verkstad demo catalog (models written by make_catalog.py)."""
+"""The invented Sawdust Lane Workshop demo catalog (models written by make_catalog.py)."""

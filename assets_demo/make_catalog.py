@@ -1,9 +1,11 @@
-"""Write the Tavlund Verkstad demo catalog: six invented furniture models as glTF 2.0 binaries.
+"""Write the Sawdust Lane Workshop demo catalog: six invented furniture models as glTF 2.0 files.
 
-Tavlund Verkstad is a furniture workshop we made up for the demo; any likeness to a real company
-is accidental. Run ``python assets_demo/make_catalog.py [out_dir]`` (default: this folder). The
-output is deterministic: no timestamps, fixed noise seeds, sorted vertex welding, so two runs give
-the same bytes.
+Sawdust Lane Workshop is a furniture maker we made up for the demo; any likeness to a real
+company is accidental. Products are named for what they are, with an ``SL-`` product code.
+
+Run ``python assets_demo/make_catalog.py [out_dir]`` (default: this folder). The output is
+deterministic: no timestamps, fixed noise seeds, sorted vertex welding, so two runs give the same
+bytes.
 
 Conventions (glTF 2.0 spec, §Coordinate System and Units): metres, +Y up, the front faces +Z, and
 each model's origin is the centre of its floor footprint, so it stands on y = 0. Geometry comes from
@@ -25,7 +27,7 @@ import pygltflib as gl
 import trimesh
 from PIL import Image
 
-BRAND = "Tavlund Verkstad"
+BRAND = "Sawdust Lane Workshop"
 HERE = Path(__file__).resolve().parent
 CREASE_DEGREES = 35.0  # faces meeting at a sharper angle get split (hard) normals
 DIMENSION_TOLERANCE = 0.002  # metres; the generator refuses models that miss their nominal size
@@ -444,7 +446,7 @@ OAK_GRAIN = Material("oiled_oak_grain", [1.0, 1.0, 1.0], roughness=0.5, base_tex
 SMOKED_OAK = Material("smoked_oak", srgb_to_linear("#5a3f2b"), roughness=0.5)
 
 
-def ekra_chair() -> Product:
+def oak_dining_chair() -> Product:
     """Dining chair: four legs, a rounded seat, a backrest tilted 6° on the rear posts."""
     leg, post_top, seat_top = 0.035, 0.84, 0.45
     front_leg = Mesh("front_leg", [part(box([leg, 0.42, leg], [0, 0.21, 0]), OAK.name)])
@@ -467,7 +469,7 @@ def ekra_chair() -> Product:
     backrest = part(rounded_box([span, 0.12, 0.02], [0, 0, 0], 0.008), OAK.name)
     tilt = np.radians(-6.0)  # about +X: the top leans toward -Z, away from the sitter
     root = Node(
-        "Ekra_dining_chair",
+        "oak_dining_chair",
         children=[
             Node("legs", children=legs),
             Node("rails", Mesh("rails", rails)),
@@ -481,10 +483,10 @@ def ekra_chair() -> Product:
         ],
     )
     return Product(
-        "TV-1001",
-        "Ekra dining chair",
+        "SL-1001",
+        "Oak dining chair",
         "chair",
-        "tavlund_ekra_chair.glb",
+        "oak_dining_chair.glb",
         (0.46, 0.50, 0.84),
         root,
         [OAK],
@@ -493,7 +495,7 @@ def ekra_chair() -> Product:
     )
 
 
-def rolvan_table() -> Product:
+def oak_dining_table() -> Product:
     """Dining table for six: a 30 mm top on four square legs, grain-textured oak."""
     width, depth, height, top = 1.80, 0.90, 0.75, 0.03
     m = OAK_GRAIN.name
@@ -514,7 +516,7 @@ def rolvan_table() -> Product:
         rounded_box([width, top, depth], [0, height - top / 2, 0], 0.008), m, tile=1.2, grain_axis=0
     )
     root = Node(
-        "Rolvan_dining_table",
+        "oak_dining_table",
         children=[
             Node("top", Mesh("top", [top_part])),
             Node("aprons", Mesh("aprons", aprons)),
@@ -522,10 +524,10 @@ def rolvan_table() -> Product:
         ],
     )
     return Product(
-        "TV-2001",
-        "Rolvan dining table",
+        "SL-2001",
+        "Oak dining table",
         "table",
-        "tavlund_rolvan_table.glb",
+        "oak_dining_table.glb",
         (width, depth, height),
         root,
         [OAK_GRAIN],
@@ -533,7 +535,7 @@ def rolvan_table() -> Product:
     )
 
 
-def liora_lamp() -> Product:
+def brass_floor_lamp() -> Product:
     """Floor lamp: brass stem on a black base, an opal-glass shade and a warm emissive bulb."""
     brass = Material("polished_brass", srgb_to_linear("#e3c27a"), metallic=1.0, roughness=0.12)
     base_paint = Material(
@@ -594,7 +596,7 @@ def liora_lamp() -> Product:
             )
         )
     root = Node(
-        "Liora_floor_lamp",
+        "brass_floor_lamp",
         children=[
             Node("base", Mesh("base", [part(base, base_paint.name)])),
             Node(
@@ -617,10 +619,10 @@ def liora_lamp() -> Product:
         ],
     )
     return Product(
-        "TV-3001",
-        "Liora floor lamp",
+        "SL-3001",
+        "Brass floor lamp",
         "lamp",
-        "tavlund_liora_lamp.glb",
+        "brass_floor_lamp.glb",
         (2 * r_bottom, 2 * r_bottom, height),
         root,
         [brass, base_paint, glass, bulb],
@@ -640,8 +642,8 @@ FABRICS = {  # variant name: (base colour, sheen tint), sRGB
 SHEEN_STRENGTH, SHEEN_ROUGHNESS = 0.5, 0.4
 
 
-def mosse_sofa() -> Product:
-    """Three-seat sofa in a woven fabric with a normal map; colour options as material variants."""
+def wool_sofa() -> Product:
+    """Sofa in a woven wool-blend fabric with a normal map; colour options as material variants."""
     fabrics = [
         Material(
             f"fabric_{name}",
@@ -681,7 +683,7 @@ def mosse_sofa() -> Product:
     ]
     pillows = [upholstered([0.78, 0.36, 0.16], [s * 0.4, 0.62, -0.17], 0.07) for s in (1, -1)]
     root = Node(
-        "Mosse_sofa",
+        "wool_sofa",
         children=[
             Node("legs", children=legs),
             Node("body", Mesh("body", arms + [frame, back])),
@@ -690,20 +692,20 @@ def mosse_sofa() -> Product:
         ],
     )
     return Product(
-        "TV-4001",
-        "Mosse three-seat sofa",
+        "SL-4001",
+        "Wool sofa",
         "sofa",
-        "tavlund_mosse_sofa.glb",
+        "wool_sofa.glb",
         (width, depth, height),
         root,
         fabrics + [SMOKED_OAK],
-        "Deep three-seat sofa upholstered in a plain-weave wool blend, on turned smoked oak legs.",
+        "Deep sofa upholstered in a plain-weave wool blend, on turned smoked oak legs.",
         variants=list(FABRICS),
         seat_height=seat,
     )
 
 
-def stavre_bookcase() -> Product:
+def ash_bookcase() -> Product:
     """Open bookcase: two sides, top, plinth, four shelves and a painted back panel."""
     ash = Material("white_oiled_ash", srgb_to_linear("#dccbb0"), roughness=0.5)
     sage = Material("sage_paint", srgb_to_linear("#8c9a84"), roughness=0.7)
@@ -726,17 +728,17 @@ def stavre_bookcase() -> Product:
         sage.name,
     )
     root = Node(
-        "Stavre_bookcase",
+        "ash_bookcase",
         children=[
             Node("carcass", Mesh("carcass", boards + [plinth])),
             Node("back_panel", Mesh("back_panel", [back])),
         ],
     )
     return Product(
-        "TV-5001",
-        "Stavre bookcase",
+        "SL-5001",
+        "Ash bookcase",
         "storage",
-        "tavlund_stavre_bookcase.glb",
+        "ash_bookcase.glb",
         (width, depth, height),
         root,
         [ash, sage],
@@ -744,10 +746,10 @@ def stavre_bookcase() -> Product:
     )
 
 
-def kipp_stool() -> Product:
+def lacquered_counter_stool() -> Product:
     """Counter stool: a lacquered (clearcoat) seat on four splayed chrome tubes with a footrest."""
     lacquer = Material(
-        "lingon_lacquer",
+        "red_lacquer",
         srgb_to_linear("#8c2a22"),
         roughness=0.45,
         extensions={
@@ -786,7 +788,7 @@ def kipp_stool() -> Product:
     ring_y = 0.24
     ring_r = foot_r + (top_r - foot_r) * (ring_y - foot_y) / (top_y - foot_y)
     root = Node(
-        "Kipp_counter_stool",
+        "lacquered_counter_stool",
         children=[
             Node("seat", Mesh("seat", [part(seat, lacquer.name)])),
             Node(
@@ -801,10 +803,10 @@ def kipp_stool() -> Product:
         ],
     )
     return Product(
-        "TV-6001",
-        "Kipp counter stool",
+        "SL-6001",
+        "Lacquered counter stool",
         "stool",
-        "tavlund_kipp_stool.glb",
+        "lacquered_counter_stool.glb",
         (2 * seat_radius, 2 * seat_radius, height),
         root,
         [lacquer, chrome, glide],
@@ -813,7 +815,14 @@ def kipp_stool() -> Product:
     )
 
 
-PRODUCTS = (ekra_chair, rolvan_table, liora_lamp, mosse_sofa, stavre_bookcase, kipp_stool)
+PRODUCTS = (
+    oak_dining_chair,
+    oak_dining_table,
+    brass_floor_lamp,
+    wool_sofa,
+    ash_bookcase,
+    lacquered_counter_stool,
+)
 
 
 # ----------------------------------------------------------------------------------------------

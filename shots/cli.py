@@ -14,14 +14,16 @@ from typing import Annotated
 
 import typer
 from rich.console import Console
-from rich.markup import escape
 from rich.table import Table
 
 import shots
 from shots.batch.cli_command import batch
+from shots.cli_help import FLAG, ShotsCommand, ShotsGroup
 from shots.errors import ShotsError
+from shots.terminal import literal
 
 app = typer.Typer(
+    cls=ShotsGroup,
     add_completion=False,
     no_args_is_help=True,
     help="Render glTF 2.0 product models into consistent catalog images, on the CPU.",
@@ -32,13 +34,13 @@ out = Console()
 
 def fail(message: str, code: int = 2) -> None:
     """Print one line on stderr and exit with ``code``."""
-    err.print(f"[bold red]error:[/] {escape(message)}", highlight=False, soft_wrap=True)
+    err.print(f"[bold red]error:[/] {literal(message)}", highlight=False, soft_wrap=True)
     raise typer.Exit(code)
 
 
 def warn(message: str) -> None:
     """Print one warning line on stderr, unwrapped (a hint must stay greppable as one line)."""
-    err.print(f"[yellow]warning:[/] {escape(message)}", highlight=False, soft_wrap=True)
+    err.print(f"[yellow]warning:[/] {literal(message)}", highlight=False, soft_wrap=True)
 
 
 def show_version(value: bool) -> None:
@@ -73,28 +75,36 @@ def parse_scene(text: str | None) -> int | str | None:
     return int(text) if text is not None and text.isdigit() else text
 
 
-ModelArg = Annotated[Path, typer.Argument(help="A .gltf or .glb model file.")]
-PresetOpt = Annotated[
-    str, typer.Option("--preset", "-p", help="Built-in preset name or a TOML preset file.")
-]
-SceneOpt = Annotated[
-    str | None, typer.Option("--scene", help="glTF scene index or name (default: the file's).")
-]
+ModelArg = Annotated[Path, typer.Argument(metavar="MODEL", help="A .gltf or .glb model file.")]
+PresetOpt = Annotated[str, typer.Option(
+    "--preset", "-p", metavar="PRESET", help="Built-in preset name or a TOML preset file.")]
+SceneOpt = Annotated[str | None, typer.Option(
+    "--scene", metavar="SCENE", help="glTF scene index or name (default: the file's).")]
+OutputOpt = Annotated[
+    Path, typer.Option("--output", "-o", metavar="FOLDER", help="Output folder.")]
+QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", metavar=FLAG, help="No progress bars.")]
+LimitOpt = Annotated[list[str] | None, typer.Option(
+    "--limit", metavar="KEY=VALUE", help="Override a budget of the preset's [limits] "
+                                         "(repeatable).")]
 
 
-@app.command()
+@app.command(cls=ShotsCommand)
 def render(
     model: ModelArg,
-    output: Annotated[Path, typer.Option("--output", "-o", help="Output folder.")] = Path("renders"),
-    size: Annotated[str | None, typer.Option("--size", help="Image size WIDTHxHEIGHT.")] = None,
+    output: OutputOpt = Path("renders"),
+    size: Annotated[str | None, typer.Option(
+        "--size", metavar="WxH", help="Image size WIDTHxHEIGHT.")] = None,
     preset: PresetOpt = "still",
     scene: SceneOpt = None,
-    variant: Annotated[
-        str | None, typer.Option("--variant", help="KHR_materials_variants name to render.")
-    ] = None,
+    variant: Annotated[str | None, typer.Option(
+        "--variant", metavar="VARIANT",
+        help="KHR_materials_variants name to render; it joins the file name.")] = None,
+    limit: LimitOpt = None,
 ) -> None:
     """Render one model with a preset's shots (default: one three-quarter still)."""
+    from shots.limits import preset_with_limits
     from shots.pipeline import render_model
+    from shots.presets import load_preset
     from shots.warmup import announce_compiles
 
     try:
@@ -102,55 +112,58 @@ def render(
             written = render_model(
                 model,
                 output,
-                preset,
+                preset_with_limits(load_preset(preset), limit),
                 size=parse_size(size),
                 scene_choice=parse_scene(scene),
                 variant=variant,
-                on_frame=lambda r: out.print(f"wrote {r.path}", highlight=False),
+                on_frame=lambda r: out.print(f"wrote {literal(r.path)}", highlight=False),
                 on_warning=lambda text: warn(f"{model}: {text}"),
             )
     except ShotsError as exc:
         fail(str(exc))
-    out.print(f"{len(written)} image(s) in {output}", highlight=False)
+    out.print(f"{len(written)} image(s) in {literal(output)}", highlight=False)
 
 
-@app.command()
+@app.command(cls=ShotsCommand)
 def plan(
-    preset: Annotated[str, typer.Argument(help="Built-in preset name or a TOML preset file.")],
+    preset: Annotated[str, typer.Argument(
+        metavar="PRESET", help="Built-in preset name or a TOML preset file.")],
     model: ModelArg,
-    as_json: Annotated[bool, typer.Option("--json", help="Print the frames as JSON.")] = False,
-    picture: Annotated[
-        Path | None,
-        typer.Option(
-            "--output", "-o", help="Camera-path picture (PNG; default: MODEL-plan.png here)."
-        ),
-    ] = None,
+    as_json: Annotated[bool, typer.Option(
+        "--json", metavar=FLAG, help="Print the frames as JSON.")] = False,
+    picture: Annotated[Path | None, typer.Option(
+        "--output", "-o", metavar="FILE",
+        help="Camera-path picture (PNG; default: MODEL-plan.png here).")] = None,
     scene: SceneOpt = None,
-    shot: Annotated[
-        list[str] | None, typer.Option("--shot", help="Plan only this shot (repeatable).")
-    ] = None,
+    shot: Annotated[list[str] | None, typer.Option(
+        "--shot", metavar="SHOT", help="Plan only this shot (repeatable).")] = None,
+    limit: LimitOpt = None,
 ) -> None:
     """Print the camera of every frame a preset plans for a model, and draw the camera path."""
     from shots.gltf import load_scene
+    from shots.limits import preset_with_limits
     from shots.pathplot import write_path_picture
     from shots.planner import plan_frames
     from shots.presets import apply_model_fixes, load_preset
 
     picture = picture or Path(f"{model.stem}-plan.png")
     try:
-        chosen = load_preset(preset)
-        loaded = apply_model_fixes(load_scene(model, scene=parse_scene(scene)), chosen)
+        chosen = preset_with_limits(load_preset(preset), limit)
+        scene_model = load_scene(model, scene=parse_scene(scene), limits=chosen.limits)
+        loaded = apply_model_fixes(scene_model, chosen)
         frames = plan_frames(chosen, loaded, shots=shot or None)
         write_path_picture(frames, loaded, picture)
     except ShotsError as exc:
         fail(str(exc))
     rows = [frame.to_json() for frame in frames]
-    if as_json:
-        sys.stdout.write(json.dumps(rows, indent=1) + "\n")
+    if as_json:  # strict JSON: a non-finite number (never planned on purpose) becomes null
+        from shots.check.report import finite_or_null
+
+        sys.stdout.write(json.dumps(finite_or_null(rows), indent=1, allow_nan=False) + "\n")
         return
     for warning in loaded.warnings:
-        err.print(f"warning: {escape(warning)}", highlight=False)
-    table = Table(title=f"{preset} × {model.name}: {len(rows)} frames")
+        err.print(f"warning: {literal(warning)}", highlight=False)
+    table = Table(title=literal(f"{preset} × {model.name}: {len(rows)} frames"))
     for column in ("shot", "frame", "view", "eye", "target", "up", "lens", "size"):
         table.add_column(column)
     for row in rows:
@@ -160,14 +173,11 @@ def plan(
             fmt3(row["up"]), lens, f"{row['width']}x{row['height']}",
         )
     Console(width=max(out.width, 150)).print(table)
-    out.print(f"camera path picture: {picture}", highlight=False)
+    out.print(f"camera path picture: {literal(picture)}", highlight=False)
 
 
-@app.command()
-def demo(
-    output: Annotated[Path, typer.Option("--output", "-o", help="Output folder.")] = Path("renders"),
-    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bars.")] = False,
-) -> None:
+@app.command(cls=ShotsCommand)
+def demo(output: OutputOpt = Path("renders"), quiet: QuietOpt = False) -> None:
     """Render the invented demo catalog: thumbnails, hero views, a turntable, a report."""
     from shots.batch.progress import print_summary
     from shots.demo import run_demo
@@ -180,57 +190,98 @@ def demo(
         if not quiet:
             print_summary(summary, err)
     out.print(f"demo renders in {output}/ (contact sheet: {output}/thumbnails/contact_sheet.png,"
-              f" report: {output}/thumbnails/report.md)", highlight=False)
+              f" report: {output}/thumbnails/report.md, review page:"
+              f" {output}/thumbnails/review.html)", highlight=False)
     raise typer.Exit(max(summary.exit_code for summary in summaries))
 
 
-@app.command()
+@app.command(cls=ShotsCommand)
 def check(
-    renders: Annotated[Path, typer.Argument(help="A folder of renders (searched recursively).")],
+    renders: Annotated[Path, typer.Argument(
+        metavar="RENDERS", help="A folder of renders (searched recursively).")],
     shot: Annotated[
         str | None,
-        typer.Option("--shot", help="Only images whose path names this shot, e.g. thumbnail."),
+        typer.Option("--shot", metavar="SHOT",
+                     help="Only the images of this shot, as the batch manifests name it (images "
+                          "without one: by folder or file name)."),
     ] = None,
+    against: Annotated[
+        Path | None,
+        typer.Option("--against", metavar="APPROVED", help="A folder of approved renders: compare every image with "
+                                       "the approved one of the same model, variant, shot and "
+                                       "frame (SSIM, CIEDE2000) and draw what changed."),
+    ] = None,
+    preset: Annotated[
+        str | None,
+        typer.Option("--preset", "-p", metavar="PRESET", help="Take the tolerances from this preset's [check] "
+                                            "table (built-in name or TOML file)."),
+    ] = None,
+    tolerance: Annotated[
+        list[str] | None,
+        typer.Option("--tolerance", "-t", metavar="KEY=VALUE", help="Override one tolerance, KEY=VALUE "
+                                               "(repeatable), e.g. exposure_stops=0.5."),
+    ] = None,
+    as_json: Annotated[
+        bool, typer.Option("--json", metavar=FLAG, help="Print the report as JSON on stdout.")
+    ] = False,
+    limit: LimitOpt = None,
 ) -> None:
-    """Measure every thumbnail's fill, centring, background and exposure; flag the odd ones."""
+    """Measure every PNG render (framing, centring, background, light on the product, texture,
+    orientation), compare variants and, given approved renders, those too; flag the odd ones.
+
+    Writes report.md, report.json and review.html beside the renders; exits 1 when an image
+    is flagged.
+    """
     from shots.check import check_renders
+    from shots.check.report import report_json
+    from shots.limits import DEFAULT, with_overrides
+    from shots.presets import check_settings, load_preset
 
     try:
-        images = thumbnails_in(renders, shot)
-        if not images:
-            fail(f"{renders}: no rendered images found" + (f" for shot {shot!r}" if shot else ""))
-        report = check_renders(images)
+        base = load_preset(preset).check.model_dump() if preset else {}
+        overrides = parse_tolerances(tolerance or [])
+        tolerances = check_settings({**base, **overrides}, "--tolerance" if overrides else
+                                    str(preset or "[check]"))
+        max_pixels = with_overrides(DEFAULT, limit).image_pixels
+        report = check_renders(renders, tolerances, against=against, shot=shot,
+                               max_pixels=max_pixels)
     except ShotsError as exc:
         fail(str(exc))
-    for image, reasons in report.flagged:
-        out.print(f"[yellow]flagged[/] {image}: {'; '.join(reasons)}", highlight=False)
-    out.print(f"{len(report.flagged)} of {len(report.images)} image(s) flagged; "
-              f"report in {report.markdown_path}", highlight=False)
+    if as_json:
+        sys.stdout.write(report_json(report))
+    else:
+        for image, reasons in report.flagged:
+            out.print(f"[yellow]flagged[/] {literal(image)}: {literal('; '.join(reasons))}",
+                      highlight=False)
+        out.print(f"{len(report.flagged)} of {len(report.images)} image(s) flagged; report in "
+                  f"{literal(report.markdown_path)}, review page "
+                  f"{literal(report.review_path)}", highlight=False)
     raise typer.Exit(1 if report.flagged else 0)
 
 
-def thumbnails_in(folder: Path, shot: str | None) -> list[Path]:
-    """Rendered PNG files under ``folder`` (not the batch's own contact sheet), optionally only
-    those with ``shot`` as a path component or name prefix."""
-    from shots.batch.layout import RESERVED
+def parse_tolerances(items: list[str]) -> dict[str, object]:
+    """``KEY=VALUE`` pairs, the value read as a TOML value (so ``0.5`` is a number and ``abc``
+    stays text for the validator to refuse)."""
+    import tomllib
 
-    if folder.is_file():
-        return [folder]
-    found = [
-        p for p in sorted(folder.rglob("*.png"))
-        if p.relative_to(folder).as_posix() not in RESERVED
-        and not any(part.startswith(".") for part in p.relative_to(folder).parts)
-    ]
-    if shot is None:
-        return found
-    return [p for p in found if shot in p.relative_to(folder).parts or p.stem.startswith(shot)]
+    values = {}
+    for item in items:
+        key, sep, text = item.partition("=")
+        if not sep or not key.strip():
+            fail(f"--tolerance: expected KEY=VALUE, got {item!r}")
+        try:
+            value = tomllib.loads(f"v = {text.strip()}")["v"]
+        except tomllib.TOMLDecodeError:
+            value = text.strip()
+        values[key.strip()] = value
+    return values
 
 
 def fmt3(values) -> str:
     return "(" + ", ".join(f"{v:.3f}" for v in values) + ")"
 
 
-app.command()(batch)
+app.command(cls=ShotsCommand)(batch)
 
 
 def main() -> None:

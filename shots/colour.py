@@ -11,6 +11,10 @@ import numpy as np
 TONE_MAPS = ("neutral", "none")
 
 
+# BT.709 luminance weights of linear RGB (ITU-R BT.709-6, item 3.2)
+LUMA_709 = np.array([0.2126, 0.7152, 0.0722])
+
+
 def srgb_to_linear(c: np.ndarray) -> np.ndarray:
     """Decode sRGB values in [0, 1] to linear light (IEC 61966-2-1, §5.2)."""
     c = np.asarray(c, np.float64)

@@ -1,4 +1,4 @@
-"""The demo catalog: the invented Tavlund Verkstad models shipped with the package, and the
+"""The demo catalog: the invented Sawdust Lane Workshop models shipped with the package, and the
 ``shots demo`` run that shows every stage on them in a few minutes."""
 
 from __future__ import annotations
@@ -9,8 +9,8 @@ from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
 
-HERO_MODEL = "tavlund_mosse_sofa"  # the sofa has colour variants: one hero set per variant
-TURNTABLE_MODEL = "tavlund_kipp_stool"  # chrome and lacquer show the tracer's reflections
+HERO_MODEL = "wool_sofa"  # the sofa has colour variants: one hero set per variant
+TURNTABLE_MODEL = "lacquered_counter_stool"  # chrome and lacquer show the tracer's reflections
 
 
 @dataclass(frozen=True)

@@ -129,7 +129,7 @@ def load_hdr_image(path: str) -> np.ndarray:
 
 
 def _read_exr(file: Path) -> np.ndarray:
-    import OpenEXR  # optional heavy dependency, only needed for image environments
+    import OpenEXR  # a dependency of shots; imported here only when an image environment is used
 
     with OpenEXR.File(str(file), separate_channels=True) as exr:
         channels = exr.channels()

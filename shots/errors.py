@@ -32,3 +32,7 @@ class RenderError(ShotsError):
 
 class BatchError(ShotsError):
     """A batch-level failure (bad source list, bad path template)."""
+
+
+class UsageError(ShotsError):
+    """A command-line option has a wrong value (``source`` is the option)."""

@@ -40,6 +40,10 @@ def atomic_write_bytes(path: Path, data: bytes) -> None:
             os.fsync(handle.fileno())
         os.chmod(tmp, 0o666 & ~CURRENT_UMASK)  # mkstemp makes 0600; give a normal file's mode
         os.replace(tmp, path)
+    except OSError as exc:  # a full disk (ENOSPC), a file-size limit (EFBIG), a quota...
+        Path(tmp).unlink(missing_ok=True)
+        raise RenderError(path, None, f"cannot write {len(data)} bytes: "
+                                      f"{exc.strerror or exc} (nothing written)") from None
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise

@@ -32,9 +32,13 @@ def safe_name(text: str) -> str:
     return cleaned or "unnamed"
 
 
-def frame_file_name(model_stem: str, frame: Frame, frames_in_shot: int) -> str:
-    """``<model>-<shot>.png`` for a still, ``<model>-<shot>-<frame>.png`` in a sequence."""
-    base = f"{safe_name(model_stem)}-{safe_name(frame.shot)}"
+def frame_file_name(model_stem: str, frame: Frame, frames_in_shot: int,
+                    variant: str | None = None) -> str:
+    """``<model>-<shot>.png`` for a still, ``<model>-<shot>-<frame>.png`` in a sequence; with a
+    material variant, ``<model>-<variant>-<shot>...``, so variants rendered into one folder do
+    not overwrite each other."""
+    parts = [model_stem] + ([variant] if variant is not None else []) + [frame.shot]
+    base = "-".join(safe_name(part) for part in parts)
     return f"{base}.png" if frames_in_shot == 1 else f"{base}-{frame.index:03d}.png"
 
 
@@ -65,7 +69,7 @@ def render_model(
         preset = load_preset(preset)
     if size is not None:
         preset = preset.with_image_size(*size)
-    loaded = load_scene(model, scene=scene_choice)
+    loaded = load_scene(model, scene=scene_choice, limits=preset.limits)
     hints = model_hints(loaded) if preset.model.units == "m" and preset.model.up_axis == "y" else []
     scene = apply_model_fixes(loaded, preset)
     if on_warning is not None:
@@ -81,7 +85,7 @@ def render_model(
     written = []
     for frame in frames:
         rgba = render_frame(prepared, frame.camera, frame.look)
-        path = out_dir / frame_file_name(Path(model).stem, frame, per_shot[frame.shot])
+        path = out_dir / frame_file_name(Path(model).stem, frame, per_shot[frame.shot], variant)
         write_png(path, rgba, exposure=frame.look.exposure, tone_map=frame.look.tone_map)
         result = RenderedFrame(frame, path)
         written.append(result)

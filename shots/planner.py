@@ -258,7 +258,8 @@ def ring_cameras(shot: FramedShot, bases, size, extent: Extent, where) -> list[C
 def sphere_fit(radius: float, yfov: float, aspect: float, fill: float, orthographic: bool):
     """Distance (or ymag) at which the bounding sphere spans ``fill`` of the narrower side.
 
-    Perspective: d = r / sin(θ/2) with tan(θ/2) = fill·tan(fov_min/2) (checklist R6).
+    Perspective: d = r / sin(θ/2) with tan(θ/2) = fill·tan(fov_min/2), since a sight line that
+    grazes the sphere is at right angles to the radius it touches.
     """
     if orthographic:
         return radius / (fill * min(1.0, aspect))
@@ -497,7 +498,7 @@ def find_file_camera(scene: Scene, reference: str | int, source: str, field: str
 
 
 def camera_from_file(file_camera: FileCamera, size, extent: Extent) -> Camera:
-    """A Camera equal to a glTF camera node (glTF 2.0 spec §Cameras, checklist L5, L25).
+    """A Camera equal to a glTF camera node (glTF 2.0 spec §Cameras).
 
     The view is the node's world transform without its scale: the eye at its translation,
     looking along its −Z with its +Y up. The image keeps the preset's height; its width follows

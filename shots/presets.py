@@ -20,6 +20,7 @@ naming the file that set the key, the key's path (``shots[1].frames``) and what 
 
 from __future__ import annotations
 
+import copy
 import difflib
 import importlib.resources
 import math
@@ -34,7 +35,6 @@ import numpy as np
 from annotated_types import Ge, Gt, Le, Lt
 from pydantic import (
     BaseModel,
-    ConfigDict,
     Field,
     PlainValidator,
     PrivateAttr,
@@ -47,8 +47,10 @@ from pydantic import (
 from shots.camera import Camera, horizontal_fov, yfov_from_xfov
 from shots.colour import TONE_MAPS
 from shots.errors import PresetError
+from shots.limits import Limits
 from shots.look import Background, Environment, Ground, Light, Look
 from shots.scene import Scene
+from shots.tables import Table
 
 # The built-in presets: presets/*.toml in a source checkout, this package once installed.
 BUILTIN_PACKAGE = "shots.preset_files"
@@ -98,12 +100,6 @@ def _camera_reference(value: object) -> str | int:
 CameraReference = Annotated[str | int, PlainValidator(_camera_reference)]
 
 
-class Table(BaseModel):
-    """A TOML table: unknown keys are errors, and a string is never read as a number."""
-
-    model_config = ConfigDict(extra="forbid", strict=True, frozen=True)
-
-
 class ImageSettings(Table):
     width: int = Field(512, ge=1, le=16384)
     height: int = Field(512, ge=1, le=16384)
@@ -147,6 +143,65 @@ class GroundSettings(Table):
     shadow_strength: float = Field(1.0, ge=0.0, le=1.0)
     sweep_radius: float = Field(1.0, gt=0.0)  # metres
     sweep_distance: float = Field(2.0, gt=0.0)  # metres behind the target
+
+
+class CheckSettings(Table):
+    """How far a rendered image may stray before ``shots check`` (and every batch) flags it.
+
+    Fractions of the frame unless said otherwise. ``shots check --tolerance KEY=VALUE`` overrides
+    one key for a run.
+    """
+
+    fill: float = Field(0.08, ge=0.0, le=1.0, description=(
+        "Most difference of the product's fill from the catalog median (compared only when the "
+        "catalog's fills agree within `fill_spread`)."))
+    fill_spread: float = Field(0.04, ge=0.0, le=1.0, description=(
+        "The catalog counts as framed to one fill when the median deviation of its fills is at "
+        "most this; only then are fill and the vertical centre compared."))
+    centre_offset: float = Field(0.03, ge=0.0, le=1.0, description=(
+        "Most offset of the product's box centre from the frame centre."))
+    exposure_stops: float = Field(1.0, ge=0.0, description=(
+        "Most difference, in stops, of the light on the product (rendered over albedo "
+        "luminance) from the catalog median."))
+    variant_stops: float = Field(0.5, ge=0.0, description=(
+        "Most difference, in stops, of the light on one variant from the median of the same "
+        "model's variants and shots of the same name."))
+    white_base: float = Field(0.5, ge=0.0, le=1.0, description=(
+        "Most share of the visible surface whose base colour is pure white (a texture lost on "
+        "export leaves the white factor alone)."))
+    clipped: float = Field(0.10, ge=0.0, le=1.0, description=(
+        "Most share of product pixels at full white."))
+    purity: float = Field(0.99, ge=0.0, le=1.0, description=(
+        "Transparent backgrounds: least share of clean background pixels."))
+    border_std: float = Field(0.02, ge=0.0, le=1.0, description=(
+        "Opaque backgrounds: most spread of the border around its colour."))
+    flat_ratio: float = Field(0.25, ge=0.0, le=1.0, description=(
+        "Flat colour: texture detail below this share of the catalog median is flagged."))
+    flat_floor: float = Field(0.01, ge=0.0, le=1.0, description=(
+        "The flat-colour check runs only when the catalog median detail reaches this."))
+    shadow_above: float = Field(0.1, ge=0.0, description=(
+        "Upside down: the shadow's centre this many box heights above the product's."))
+    mass_low: float = Field(0.55, ge=0.0, le=1.0, description=(
+        "Upside down: the outline's mass lower than this (0 top, 1 bottom of its box)..."))
+    mass_margin: float = Field(0.1, ge=0.0, le=1.0, description=(
+        "... and this far below the catalog median."))
+    min_catalog: int = Field(3, ge=1, description=(
+        "Images with a product needed before anything is compared with the catalog median."))
+    alpha_threshold: float = Field(0.5, ge=0.0, le=1.0, description=(
+        "Transparent backgrounds: least alpha of a product pixel."))
+    shadow_level: float = Field(3 / 255, ge=0.0, le=1.0, description=(
+        "A pixel with every channel at most this is shadow, whatever its alpha."))
+    background_threshold: float = Field(0.06, ge=0.0, le=1.0, description=(
+        "Opaque backgrounds: a product pixel differs from the background by more than this."))
+    opaque_shadow_floor: float = Field(0.75, ge=0.0, le=1.0, description=(
+        "Opaque backgrounds: a soft shadow keeps at least this share of the background."))
+    ssim: float = Field(0.97, ge=0.0, le=1.0, description=(
+        "Against approved images: least mean structural similarity (SSIM, Wang et al. 2004)."))
+    delta_e: float = Field(5.0, ge=0.0, description=(
+        "Against approved images: a pixel has changed when the CIEDE2000 difference of its "
+        "neighbourhood's colour exceeds this."))
+    changed_share: float = Field(0.002, ge=0.0, le=1.0, description=(
+        "Against approved images: most share of changed pixels."))
 
 
 class RigLight(Table):
@@ -360,6 +415,8 @@ class Preset(Table):
     ground: GroundSettings = GroundSettings()
     lights: list[RigLight] = Field(default_factory=list, max_length=32)
     shots: list[Shot] = Field(default_factory=list, max_length=256)
+    check: CheckSettings = CheckSettings()
+    limits: Limits = Limits()  # per-model budgets (shots.limits); no effect on pixels
     _source: str = PrivateAttr("")
 
     @property
@@ -419,7 +476,10 @@ def load_preset(name_or_path: str | Path) -> Preset:
     PresetError : one line naming the file, the key path and what is allowed.
     """
     path = _locate(name_or_path)
-    data, origins = _read_merged(path, ())
+    try:
+        data, origins = _read_merged(path, (), {})
+    except RecursionError:
+        raise PresetError(path, None, "tables nested too deeply") from None
     _resolve_files(data, origins)
     try:
         preset = Preset.model_validate(data)
@@ -428,6 +488,20 @@ def load_preset(name_or_path: str | Path) -> Preset:
         raise PresetError(_origin(origins, exc, path), field, message) from None
     preset._source = str(path)
     return preset
+
+
+def check_settings(values: dict, source: str = "[check]") -> CheckSettings:
+    """Check tolerances from a table of overrides, validated like a preset's ``[check]`` table.
+
+    Raises
+    ------
+    PresetError : naming ``source`` and the key (``check.fill``) with what is allowed.
+    """
+    try:
+        return Preset.model_validate({"check": dict(values)}).check
+    except ValidationError as exc:
+        field, message = _first_problem(exc)
+        raise PresetError(source, field, message) from None
 
 
 def _locate(name_or_path: str | Path) -> Path:
@@ -451,16 +525,34 @@ def _read_toml(path: Path) -> dict:
             return tomllib.load(handle)
     except tomllib.TOMLDecodeError as exc:
         raise PresetError(path, None, f"not valid TOML: {exc}") from None
+    except UnicodeDecodeError as exc:
+        raise PresetError(path, None, f"not UTF-8 text (byte {exc.start})") from None
+    except RecursionError:
+        raise PresetError(path, None, "not valid TOML: arrays or tables nested too deeply") \
+            from None
     except OSError as exc:
         raise PresetError(path, None, f"cannot read: {exc.strerror}") from None
 
 
-def _read_merged(path: Path, chain: tuple[Path, ...]) -> tuple[dict, dict]:
-    """A file's data merged over its parents', and which file set each table key."""
+MAX_EXTENDS_DEPTH = 16  # presets extending presets; deeper chains are refused
+
+
+def _read_merged(path: Path, chain: tuple[Path, ...], done: dict) -> tuple[dict, dict]:
+    """A file's data merged over its parents', and which file set each table key.
+
+    ``done`` keeps each file's merged result for this load, so a preset reached along many
+    ``extends`` paths (a diamond) is read and merged once, not once per path.
+    """
     here = path.resolve()
     if here in chain:
         loop = " → ".join(p.name for p in (*chain, here))
         raise PresetError(path, "extends", f"presets extend each other in a loop: {loop}")
+    if len(chain) >= MAX_EXTENDS_DEPTH:
+        raise PresetError(path, "extends", f"presets extend each other more than "
+                                           f"{MAX_EXTENDS_DEPTH} levels deep")
+    if here in done:
+        data, origins = done[here]
+        return copy.deepcopy(data), dict(origins)
     own = _read_toml(path)
     parents = own.pop("extends", [])
     if isinstance(parents, str):
@@ -471,9 +563,11 @@ def _read_merged(path: Path, chain: tuple[Path, ...]) -> tuple[dict, dict]:
     data: dict = {}
     origins: dict[tuple, str] = {}
     for reference in parents:
-        parent_data, parent_origins = _read_merged(_parent_path(reference, path), (*chain, here))
+        parent_data, parent_origins = _read_merged(_parent_path(reference, path), (*chain, here),
+                                                   done)
         _merge(data, origins, parent_data, parent_origins, ())
     _merge(data, origins, own, _origins_of(own, str(path), ()), ())
+    done[here] = (copy.deepcopy(data), dict(origins))
     return data, origins
 
 
@@ -625,6 +719,8 @@ def _explain(error: dict) -> tuple[str | None, str]:
     if kind in BOUND_WORDS:
         limit = next(iter(ctx.values()))
         return shown, f"must be {BOUND_WORDS[kind]} {limit}, got {_describe(value, bare=True)}"
+    if kind == "finite_number":
+        return shown, f"must be a finite number, got {_describe(value, bare=True)}"
     if kind == "string_pattern_mismatch":
         return shown, f"use only letters, digits, '-' and '_', got {value!r}"
     if kind == "too_short":

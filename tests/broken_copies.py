@@ -1,4 +1,4 @@
-"""Deliberately broken copies of the Tavlund demo models, written as a faulty export would be.
+"""Deliberately broken copies of the demo models, written as a faulty export would be.
 
 Each copy edits only the glTF JSON of a demo .glb with pygltflib (the root node's transform, or a
 material's texture reference); the buffer bytes stay as they are, so each copy has exactly the
@@ -8,6 +8,7 @@ one fault it is named after. Every demo model hangs from one root node without a
 
 from __future__ import annotations
 
+import json
 import math
 import shutil
 from pathlib import Path
@@ -24,7 +25,7 @@ Y_UP_TO_Z_UP = [math.sin(math.pi / 4), 0.0, 0.0, math.cos(math.pi / 4)]
 
 
 def demo_model(name: str) -> Path:
-    """A demo .glb by stem, e.g. ``tavlund_ekra_chair``."""
+    """A demo .glb by stem, e.g. ``oak_dining_chair``."""
     return DEMO / f"{name}.glb"
 
 
@@ -95,3 +96,29 @@ def untextured_copy(name: str, folder: Path) -> Path:
         assert dropped, f"{name} has no base colour texture to drop"
 
     return _edited(name, folder, "no-texture", edit)
+
+
+def catalog_products() -> list[dict]:
+    """The demo catalog's products (assets_demo/catalog.json), so tests name no file."""
+    return json.loads((DEMO / "catalog.json").read_text(encoding="utf-8"))["products"]
+
+
+def product_file(category: str | None = None, *, with_variants: bool = False) -> Path:
+    """The .glb of the first demo product of ``category`` (or the first with variants)."""
+    for product in catalog_products():
+        if (with_variants and product["variants"]) or product["category"] == category:
+            return DEMO / product["file"]
+    raise LookupError(f"no demo product of category {category!r}")
+
+
+def moved_part_copy(model: Path, folder: Path, prefix: str = "leg",
+                    offset=(-0.05, 0.0, 0.0)) -> Path:
+    """A model edit: the first node named ``prefix…`` with a translation moved by ``offset``
+    metres (a leg set 5 cm inward), written under the model's own file name in ``folder``."""
+    doc = pygltflib.GLTF2.load_binary(str(model))
+    part = next(n for n in doc.nodes if (n.name or "").startswith(prefix) and n.translation)
+    part.translation = [float(a + b) for a, b in zip(part.translation, offset, strict=True)]
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / model.name
+    doc.save_binary(str(path))
+    return path

@@ -62,7 +62,7 @@ kind = "turntable"
 frames = 4
 """
 VARIANTS = {"Box": ["default"], "Box-With-Spaces": ["default"],
-            "tavlund_ekra_chair": ["default"], "tavlund_mosse_sofa": ["oat", "slate", "moss"]}
+            "oak_dining_chair": ["default"], "wool_sofa": ["oat", "slate", "moss"]}
 SHOTS = {"hero": 1, "spin": 4}
 FRAMES = sum(len(v) for v in VARIANTS.values()) * sum(SHOTS.values())  # 30
 
@@ -72,8 +72,8 @@ def make_catalog(folder: Path) -> Path:
     folder.mkdir(parents=True)
     shutil.copy(SAMPLES / "Box.gltf", folder)
     shutil.copytree(SAMPLES / "BoxWithSpaces", folder / "spaces")
-    shutil.copy(DEMO / "tavlund_ekra_chair.glb", folder)
-    shutil.copy(DEMO / "tavlund_mosse_sofa.glb", folder)
+    shutil.copy(DEMO / "oak_dining_chair.glb", folder)
+    shutil.copy(DEMO / "wool_sofa.glb", folder)
     return folder
 
 
@@ -122,7 +122,8 @@ def tree(out: Path) -> dict[str, bytes]:
 
 
 def expected_files() -> set[str]:
-    files = {"index.json", "index.csv", "contact_sheet.png", "report.md", "report.json"}
+    files = {"index.json", "index.csv", "contact_sheet.png", "report.md", "report.json",
+             "review.html"}
     for model, variants in VARIANTS.items():
         files.add(f"manifests/{model}.json")
         for variant in variants:
@@ -152,16 +153,16 @@ def test_batch_writes_the_expected_tree(reference):
 
 def test_batch_frames_equal_the_single_model_pipeline(reference, tmp_path):
     # The same frame through shots.pipeline.render_model (one model, no batch) has the same bytes
-    written = render_model(reference["catalog"] / "tavlund_ekra_chair.glb", tmp_path,
+    written = render_model(reference["catalog"] / "oak_dining_chair.glb", tmp_path,
                            load_preset(reference["preset"]))
     single = {(r.frame.shot, r.frame.index): r.path.read_bytes() for r in written}
-    out = reference["out"] / "tavlund_ekra_chair" / "default"
+    out = reference["out"] / "oak_dining_chair" / "default"
     assert single[("hero", 0)] == (out / "hero" / "000.png").read_bytes()
     assert single[("spin", 3)] == (out / "spin" / "003.png").read_bytes()
 
 
 def test_variants_render_their_own_materials(reference):
-    out = reference["out"] / "tavlund_mosse_sofa"
+    out = reference["out"] / "wool_sofa"
     heroes = {v: (out / v / "hero" / "000.png").read_bytes() for v in ("oat", "slate", "moss")}
     assert len(set(heroes.values())) == 3
 
@@ -169,8 +170,8 @@ def test_variants_render_their_own_materials(reference):
 def test_manifest_records_hashes_cameras_and_seeds(reference):
     out, catalog = reference["out"], reference["catalog"]
     preset = load_preset(reference["preset"])
-    data = json.loads((out / "manifests" / "tavlund_mosse_sofa.json").read_text())
-    model = catalog / "tavlund_mosse_sofa.glb"
+    data = json.loads((out / "manifests" / "wool_sofa.json").read_text())
+    model = catalog / "wool_sofa.glb"
     assert data["sha256"] == hashlib.sha256(model.read_bytes()).hexdigest()
     assert data["preset_sha256"] == jobs.preset_sha256(preset)
     assert data["renderer_version"] == shots.__version__
@@ -198,7 +199,8 @@ def test_catalog_index_lists_every_file(reference):
     assert len(rows) == 1 + FRAMES + 18
     listed = {row.split(",")[6] for row in rows[1:]}
     assert listed == expected_files() - {
-        "index.json", "index.csv", "contact_sheet.png", "report.md", "report.json"} - {
+        "index.json", "index.csv", "contact_sheet.png", "report.md", "report.json",
+        "review.html"} - {
         f"manifests/{m}.json" for m in VARIANTS}
 
 
@@ -216,7 +218,7 @@ def test_contact_sheet_has_a_row_per_model_variant(reference):
 
 
 def test_animations_read_back(reference):
-    out = reference["out"] / "tavlund_ekra_chair" / "default"
+    out = reference["out"] / "oak_dining_chair" / "default"
     gif = iio.imread(out / "spin.gif", index=None)
     assert gif.shape[:3] == (4, 48, 48)
     with Image.open(out / "spin.gif") as image:
@@ -274,14 +276,14 @@ def test_touching_one_model_rerenders_only_its_frames(reference, tmp_path):
     summary = quiet_batch(catalog, reference["preset"], out, variants="all", workers=1,
                           log_json=tmp_path / "log.jsonl")
     assert {m.model: m.rendered for m in summary.models} == {
-        "Box": 5, "Box-With-Spaces": 0, "tavlund_ekra_chair": 0, "tavlund_mosse_sofa": 0}
+        "Box": 5, "Box-With-Spaces": 0, "oak_dining_chair": 0, "wool_sofa": 0}
     rendered = [e for e in events(tmp_path / "log.jsonl") if e.get("status") == "rendered"]
     assert {e["model"] for e in rendered} == {"Box"}
     old, new = tree(reference["out"]), tree(out)
     changed = {path for path in old if old[path] != new[path]}
     assert "Box/default/hero/000.png" in changed  # the new colour shows
-    assert all(p.startswith(("Box/", "manifests/Box.json", "index.", "contact_sheet", "report."))
-               for p in changed)
+    assert all(p.startswith(("Box/", "manifests/Box.json", "index.", "contact_sheet", "report.",
+                             "review.")) for p in changed)
 
 
 def test_touching_an_external_texture_rerenders_its_model(reference, tmp_path):

@@ -40,9 +40,9 @@ def test_each_hinted_model_gets_its_lines_once_naming_the_file_and_the_key(tmp_p
     # metres, glTF 2.0 spec §Coordinate System and Units) and the demo stool turned Z-up
     # (tests/broken_copies.py), next to an intact lamp that gets no hint.
     catalog = tmp_path / "catalog"
-    scaled = scaled_copy("tavlund_ekra_chair", catalog)
-    turned = z_up_copy("tavlund_kipp_stool", catalog)
-    intact_copy("tavlund_liora_lamp", catalog)
+    scaled = scaled_copy("oak_dining_chair", catalog)
+    turned = z_up_copy("lacquered_counter_stool", catalog)
+    intact_copy("brass_floor_lamp", catalog)
     preset = tmp_path / "tiny.toml"
     preset.write_text(TINY)
     text, events = run(catalog, preset, tmp_path / "out", tmp_path / "log.jsonl")
@@ -53,7 +53,7 @@ def test_each_hinted_model_gets_its_lines_once_naming_the_file_and_the_key(tmp_p
     assert "centimetres" in chair and '[model] units = "cm"' in chair
     stool = [line for line in lines if turned.name in line]
     assert stool and all('[model] up_axis = "z"' in line for line in stool), text
-    assert not any("tavlund_liora_lamp" in line for line in lines), text
+    assert not any("brass_floor_lamp" in line for line in lines), text
     assert len(lines) == 1 + len(stool)
 
     logged = [e for e in events if e["event"] == "hint"]
@@ -63,7 +63,7 @@ def test_each_hinted_model_gets_its_lines_once_naming_the_file_and_the_key(tmp_p
 
 def test_quiet_batch_logs_the_hint_and_an_up_to_date_rerun_repeats_it(tmp_path):
     catalog = tmp_path / "catalog"
-    scaled = scaled_copy("tavlund_ekra_chair", catalog)
+    scaled = scaled_copy("oak_dining_chair", catalog)
     preset = tmp_path / "tiny.toml"
     preset.write_text(TINY)
     out = tmp_path / "out"
@@ -81,7 +81,7 @@ def test_quiet_batch_logs_the_hint_and_an_up_to_date_rerun_repeats_it(tmp_path):
 def test_a_preset_that_fixes_the_units_silences_the_hint(tmp_path):
     # `shots render` hints only when the preset leaves units and up axis to glTF's defaults.
     catalog = tmp_path / "catalog"
-    scaled_copy("tavlund_ekra_chair", catalog)
+    scaled_copy("oak_dining_chair", catalog)
     preset = tmp_path / "cm.toml"
     preset.write_text(TINY + '[model]\nunits = "cm"\n')
     text, events = run(catalog, preset, tmp_path / "out", tmp_path / "log.jsonl")

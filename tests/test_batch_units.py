@@ -127,7 +127,7 @@ def test_model_hash_covers_external_files(tmp_path):
 
 
 def test_glb_hash_reads_its_json_chunk(tmp_path):
-    model = DEMO / "tavlund_ekra_chair.glb"
+    model = DEMO / "oak_dining_chair.glb"
     assert jobs._external_uris(model) == set()  # everything is inside the GLB
     file_hash, inputs = jobs.model_hashes(model)
     assert file_hash == hashlib.sha256(model.read_bytes()).hexdigest() != inputs

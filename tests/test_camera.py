@@ -74,8 +74,9 @@ def every_pixel_centre(camera):
     return ii.ravel() + 0.5, jj.ravel() + 0.5
 
 
-def test_basis_matches_checklist_values():
-    # Checklist R1: eye (0,0,5) → u, v, w = +X, +Y, +Z; eye (3,2,4) → u = (0.8, 0, −0.6).
+def test_look_at_basis_is_right_handed_with_w_toward_the_eye():
+    # glTF 2.0 spec §View Matrix (camera looks down −Z, +Y up), by hand: eye (0,0,5) → u, v, w =
+    # +X, +Y, +Z; eye (3,2,4) → u = (0, 1, 0) × (3, 2, 4)/|·| = (0.8, 0, −0.6).
     np.testing.assert_allclose(look_at_basis((0, 0, 5), (0, 0, 0), (0, 1, 0)), np.eye(3))
     basis = look_at_basis((3, 2, 4), (0, 0, 0), (0, 1, 0))
     np.testing.assert_allclose(basis[0], [0.8, 0.0, -0.6], atol=1e-12)
@@ -85,8 +86,8 @@ def test_basis_matches_checklist_values():
 @pytest.mark.parametrize("camera", CAMERAS)
 @pytest.mark.parametrize("zfar", [50.0, None])
 def test_perspective_rays_reproject_to_their_pixel_centres(camera, zfar):
-    # Checklist R3: march along each pixel-centre ray, apply the spec's projection × view matrix
-    # and land on that pixel's centre (i + 0.5, j + 0.5).
+    # glTF 2.0 spec §Projection Matrices and §View Matrix: march along each pixel-centre ray,
+    # apply the spec's projection × view matrix and land on that pixel's centre (i + 0.5, j + 0.5).
     px, py = every_pixel_centre(camera)
     origins, directions = camera.rays_at(px, py)
     points = origins.astype(float) + 3.7 * directions.astype(float)
@@ -97,7 +98,7 @@ def test_perspective_rays_reproject_to_their_pixel_centres(camera, zfar):
 
 @pytest.mark.parametrize("camera", ORTHO_CAMERAS)
 def test_orthographic_rays_reproject_to_their_pixel_centres(camera):
-    # glTF 2.0 spec §Projection Matrices (orthographic) and checklist R5.
+    # glTF 2.0 spec §Projection Matrices (orthographic: xmag, ymag are half-extents).
     px, py = every_pixel_centre(camera)
     origins, directions = camera.rays_at(px, py)
     points = origins.astype(float) + 2.3 * directions.astype(float)
@@ -125,8 +126,8 @@ def test_stratified_sub_pixel_rays_reproject(camera):
 
 @pytest.mark.parametrize("camera", CAMERAS + ORTHO_CAMERAS)
 def test_image_is_upright_and_not_mirrored(camera):
-    # Checklist R2 / L6: row 0 is the top; a point toward +u lands in the right half, toward +v
-    # in the top half.
+    # glTF 2.0 spec §View Matrix (+X right, +Y up): row 0 is the top; a point toward +u lands in
+    # the right half, toward +v in the top half.
     u, v, w = camera.basis()
     ahead = np.asarray(camera.eye) - 2.0 * w
     right, above = camera.project(np.array([ahead + 0.2 * u, ahead + 0.2 * v]))
@@ -144,7 +145,7 @@ def test_project_inverts_rays_at(camera):
 
 def test_rays_match_trimesh_camera_to_rays():
     # trimesh 5.2 trimesh.scene.cameras.camera_to_rays: camera-frame directions through pixel
-    # centres, fov=(fovx, fovy) in degrees; its pixel y counts from the bottom (checklist R4).
+    # centres, fov=(fovx, fovy) in degrees; its pixel y counts from the bottom.
     camera = Camera((0, 0, 0), (0, 0, -1), (0, 1, 0), 12, 8, yfov=math.radians(50))
     reference = trimesh.scene.Camera(
         resolution=(camera.width, camera.height),
@@ -156,8 +157,8 @@ def test_rays_match_trimesh_camera_to_rays():
     np.testing.assert_allclose(ours, vectors, atol=1e-6)
 
 
-def test_checklist_r4_value_from_trimesh():
-    # Checklist R4 (trimesh): resolution (4, 2), fov (90°, 53.130°): trimesh pixel (0, 1) has the
+def test_corner_ray_matches_trimesh_camera_to_rays():
+    # trimesh 5.2 camera_to_rays: resolution (4, 2), fov (90°, 53.130°): its pixel (0, 1) has the
     # direction (−0.5883, 0.1961, −0.7845), which is ours at column 0, row 0 (the top).
     camera = Camera((0, 0, 0), (0, 0, -1), (0, 1, 0), 4, 2, yfov=math.radians(53.130102354))
     assert math.degrees(camera.xfov) == pytest.approx(90.0, abs=1e-6)
@@ -187,7 +188,8 @@ def test_fifty_millimetre_lens_on_full_frame():
 
 
 def test_vertical_fov_follows_tangent_not_angle():
-    # Checklist R2: yfov 0.660593 rad at aspect 1.5 → xfov 54.432°, not 1.5·yfov (56.77°).
+    # tan(xfov/2) = aspect·tan(yfov/2): yfov 0.660593 rad at aspect 1.5 → xfov 54.432°, not
+    # 1.5·yfov (56.77°).
     camera = Camera((0, 0, 1), (0, 0, 0), (0, 1, 0), 300, 200, yfov=0.660593)
     assert math.degrees(camera.xfov) == pytest.approx(54.432, abs=1e-3)
     assert yfov_from_xfov(camera.xfov, 1.5) == pytest.approx(0.660593, abs=1e-12)

@@ -4,7 +4,7 @@ Every image is drawn here in numpy: products with analytic outlines (discs, a ta
 legs) anti-aliased by 5×5 supersampling, a texture (stripes, checker, noise), and a soft contact
 shadow that is black with partial alpha, as a shadow catcher writes it. Products are composited
 over the shadow with the Porter–Duff "over" operator in straight alpha (Porter & Duff 1984; PNG
-stores unassociated alpha: PNG spec §6.2, from memory; research checklist C6). Broken copies
+stores unassociated alpha: PNG spec §6.2, from memory). Broken copies
 mimic real faults: a model in centimetres in a fixed-scale render (×100 or ×0.01), an off-centre
 pivot, a flipped image, a model turned over in the scene, a missing texture.
 """
@@ -17,10 +17,14 @@ import numpy as np
 import pytest
 from markdown_it import MarkdownIt
 from PIL import Image
+from typer.testing import CliRunner
 
+from shots.batch.jobs import preset_sha256
 from shots.check import CheckReport, Tolerances, check_renders, measure_image
 from shots.check.report import FLAG_MARK
+from shots.cli import app
 from shots.errors import BatchError, PresetError
+from shots.presets import check_settings, load_preset
 
 S = 192  # frame size in pixels
 SUB = 5  # supersamples per pixel and axis (odd: no pixel is exactly half covered)
@@ -203,7 +207,7 @@ def test_the_frame_filling_model_is_cut_off(catalog_report):
 def test_tolerances_move_the_line(tmp_path):
     write_catalog(tmp_path, list(GOOD) + ["off-centre.png"])
     assert [p.name for p, _ in check_renders(tmp_path).flagged] == ["off-centre.png"]
-    # 0.06 of the frame off centre is allowed with a 0.1 limit, as a dict or a dataclass.
+    # 0.06 of the frame off centre is allowed with a 0.1 limit, as a dict or the [check] table.
     assert check_renders(tmp_path, {"centre_offset": 0.1}).flagged == []
     assert check_renders(tmp_path, Tolerances(centre_offset=0.1)).flagged == []
 
@@ -414,7 +418,7 @@ def test_bad_input(tmp_path):
     save(tmp_path / "oak-disc.png", disc_image())
     with pytest.raises(PresetError, match="did you mean 'centre_offset'"):
         check_renders(tmp_path, {"center_offset": 0.1})
-    with pytest.raises(PresetError, match="non-negative number"):
+    with pytest.raises(PresetError, match="check.fill: expected a number"):
         check_renders(tmp_path, {"fill": "wide"})
 
 
@@ -432,3 +436,80 @@ def test_tiny_images_are_measured(tmp_path, size):
     rgba[size // 2, size // 2] = (0.6, 0.4, 0.3, 1.0)  # one product pixel in the middle
     m = measure_image(save(tmp_path / "tiny.png", rgba))
     assert m.product_pixels == 1 and m.fill == pytest.approx(1 / size)
+
+
+# --- the command line and the preset's [check] table ------------------------------------------------
+
+
+def run_check(*args):
+    return CliRunner().invoke(app, ["check", *map(str, args)])
+
+
+def test_check_json_prints_the_report_on_stdout(tmp_path):
+    write_catalog(tmp_path, list(GOOD) + ["off-centre.png"])
+    result = run_check(tmp_path, "--json")
+    assert result.exit_code == 1  # an image is flagged
+    document = json.loads(result.stdout)  # nothing but the report on stdout
+    assert document["images_flagged"] == 1
+    assert document == json.loads((tmp_path / "report.json").read_text(encoding="utf-8"))
+    assert (tmp_path / "review.html").is_file()
+
+
+def test_tolerances_on_the_command_line_and_in_a_preset(tmp_path):
+    write_catalog(tmp_path, list(GOOD) + ["off-centre.png"])
+    # 0.06 of the frame off centre: allowed with a limit of 0.1, from the command line ...
+    assert run_check(tmp_path, "--tolerance", "centre_offset=0.1").exit_code == 0
+    # ... or from a preset's [check] table, which the command line still overrides.
+    preset = tmp_path / "team.toml"
+    preset.write_text('extends = "thumbnail"\n[check]\ncentre_offset = 0.1\n', encoding="utf-8")
+    assert run_check(tmp_path, "--preset", preset).exit_code == 0
+    assert run_check(tmp_path, "--preset", preset, "-t", "centre_offset=0.02").exit_code == 1
+
+
+@pytest.mark.parametrize("option, words", [
+    ("fil=0.1", "--tolerance: check.fil: unknown key; did you mean 'fill'?"),
+    ("fill=wide", "--tolerance: check.fill: expected a number, got the string 'wide'"),
+    ("min_catalog=0", "--tolerance: check.min_catalog: must be at least 1"),
+    ("fill", "--tolerance: expected KEY=VALUE"),
+])  # fmt: skip
+def test_a_bad_tolerance_is_one_line_and_exit_2(tmp_path, option, words):
+    write_catalog(tmp_path, list(GOOD))
+    result = run_check(tmp_path, "--tolerance", option)
+    assert result.exit_code == 2
+    assert words in " ".join(result.stderr.split())
+    assert "Traceback" not in result.output and not (tmp_path / "report.md").exists()
+
+
+def test_a_bad_check_table_in_a_preset_names_the_file_and_key(tmp_path):
+    preset = tmp_path / "team.toml"
+    preset.write_text("[check]\nexposure_stops = -1\n", encoding="utf-8")
+    with pytest.raises(PresetError, match=r"team\.toml: check\.exposure_stops: must be at least"):
+        load_preset(preset)
+
+
+def test_check_tolerances_do_not_change_frame_keys():
+    # A tolerance changes no pixel, so a team tuning its check re-renders nothing.
+    base = load_preset("thumbnail")
+    tuned = base.model_copy(update={"check": check_settings({"fill": 0.2})})
+    assert preset_sha256(tuned) == preset_sha256(base)
+
+
+def test_the_review_page_carries_names_as_data_not_markup(tmp_path):
+    # A folder named like markup becomes the model's name: it must reach the page as JSON text.
+    hostile = "a<script>b"
+    write_catalog(tmp_path / hostile, list(GOOD))
+    report = check_renders(tmp_path)
+    page = report.review_path.read_text(encoding="utf-8")
+    data_text = page.split('<script type="application/json" id="review-data">', 1)[1]
+    data_text = data_text.split("</script>", 1)[0]
+    assert "<" not in data_text
+    data = json.loads(data_text)
+    assert {image["model"] for image in data["images"]} == {hostile}
+    assert all((tmp_path / image["src"]).is_file() for image in data["images"])
+
+
+def test_check_help_says_what_it_measures():
+    text = " ".join(CliRunner().invoke(app, ["check", "--help"]).stdout.split())
+    assert "Measure every PNG render" in text
+    for option in ("--against", "--tolerance", "--preset", "--json", "--shot"):
+        assert option in text

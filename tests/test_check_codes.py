@@ -8,10 +8,12 @@ from pathlib import Path
 import numpy as np
 from PIL import Image
 from test_batch import TINY  # tests/: the batch tests' small preset (48 px, a 4-frame turntable)
+from typer.testing import CliRunner
 
 from shots.batch import run_batch
 from shots.check import check_renders, measure_image
 from shots.check.measure import box_sum, dilate, measure_codes, texture_detail
+from shots.cli import app
 
 DEMO = Path(__file__).resolve().parents[1] / "assets_demo"
 
@@ -97,7 +99,7 @@ def test_batch_report_equals_checking_its_files_afterwards(tmp_path):
     # The batch measures first frames from memory; `shots check` reads the same PNG files.
     catalog = tmp_path / "catalog"
     catalog.mkdir()
-    for name in ("tavlund_ekra_chair", "tavlund_kipp_stool", "tavlund_liora_lamp"):
+    for name in ("oak_dining_chair", "lacquered_counter_stool", "brass_floor_lamp"):
         shutil.copy(DEMO / f"{name}.glb", catalog)
     preset = tmp_path / "tiny.toml"
     preset.write_text(TINY)
@@ -114,3 +116,23 @@ def test_batch_report_equals_checking_its_files_afterwards(tmp_path):
         (i["metrics"], i["reasons"]) for i in file_report["images"]
     ]
     assert batch_report["catalog_medians"] == file_report["catalog_medians"]
+
+
+def test_check_shot_follows_the_manifests_not_the_file_names(tmp_path):
+    # A template without {shot}: the file names do not say which shot a frame is.
+    catalog = tmp_path / "catalog"
+    catalog.mkdir()
+    products = json.loads((DEMO / "catalog.json").read_text(encoding="utf-8"))["products"]
+    files = sorted(product["file"] for product in products)[:2]
+    for name in files:
+        shutil.copy(DEMO / name, catalog)
+    preset = tmp_path / "one-shot.toml"
+    preset.write_text('extends = "thumbnail"\n[image]\nwidth = 32\nheight = 32\nsamples = 1\n')
+    out = tmp_path / "out"
+    run_batch(catalog, preset, out, workers=1, quiet=True, template="{model}.png")
+    runner = CliRunner()
+    result = runner.invoke(app, ["check", str(out), "--shot", "thumbnail", "--json"])
+    found = sorted(entry["file"] for entry in json.loads(result.stdout)["images"])
+    assert found == [name.replace(".glb", ".png") for name in files]
+    result = runner.invoke(app, ["check", str(out), "--shot", "hero"])
+    assert result.exit_code == 2 and "no images of shot 'hero'" in result.stderr

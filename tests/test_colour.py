@@ -18,7 +18,7 @@ from shots.output import CURRENT_UMASK, png_bytes, write_png
 
 
 def test_srgb_reference_values():
-    # IEC 61966-2-1 transfer functions; values recomputed in the research checklist (C2).
+    # IEC 61966-2-1 transfer functions; values worked out from its formulas in float64.
     assert np.isclose(srgb_to_linear(0.5), 0.21404, atol=1e-5)
     assert np.isclose(srgb_to_linear(128 / 255), 0.21586, atol=1e-5)
     assert np.isclose(linear_to_srgb(0.18), 0.46136, atol=1e-5)
@@ -36,7 +36,7 @@ def test_srgb_round_trip_is_exact_for_8_bit_codes():
 
 
 def test_pbr_neutral_reference_values():
-    # Khronos PBR Neutral (KhronosGroup/ToneMapping, 2024): grey inputs, values from the checklist C4.
+    # Khronos PBR Neutral (KhronosGroup/ToneMapping, 2024): grey inputs through its reference code.
     for x, expected in [(0.18, 0.14), (0.5, 0.46), (1.0, 0.86909)]:
         out = pbr_neutral(np.array([x, x, x]))
         assert np.allclose(out, expected, atol=1e-4), (x, out)
@@ -49,7 +49,7 @@ def test_pbr_neutral_keeps_saturated_midtones():
 
 
 def test_half_covered_white_edge_has_no_dark_fringe():
-    # Straight alpha in PNG (PNG spec §12.8; checklist C6): premultiplied (0.5,0.5,0.5,0.5) is
+    # Straight alpha in PNG (PNG spec §12.8): premultiplied (0.5,0.5,0.5,0.5) is
     # white at half coverage and must be written as (255, 255, 255, 128), not grey 188.
     premultiplied = np.array([[[0.5, 0.5, 0.5, 0.5]]], np.float32)
     codes = quantize(to_display(premultiplied, tone_map="none"))

@@ -1,4 +1,4 @@
-"""The invented Tavlund Verkstad demo catalog in assets_demo/: generator, geometry and materials.
+"""The invented Sawdust Lane Workshop demo catalog in assets_demo/: generator, geometry, materials.
 
 The models are read back with libraries that share no code with the generator's writer path:
 trimesh (an independent glTF loader) for geometry and Pillow for the embedded images. pygltflib
@@ -366,7 +366,7 @@ def test_woven_normal_map_holds_unit_outward_normals():
 def test_sofa_tangents_follow_the_uv_convention():
     # glTF 2.0 spec §Meshes: TANGENT xyz unit, w = ±1, bitangent = cross(normal, tangent) · w.
     # The bitangent must point toward decreasing v (image up, green up), see
-    # glTF-Sample-Models issue #174 and /work/shared/research/gltf-checklist.md M6.
+    # glTF 2.0 spec §Meshes (TANGENT) and glTF-Sample-Models issue #174.
     doc = load_gltf(BY_CATEGORY["sofa"])
     checked = 0
     for mesh in doc.meshes:

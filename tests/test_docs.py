@@ -195,7 +195,7 @@ def toml_example(readme: str) -> str:
 
 
 def test_walkthrough_preset_loads_and_extends_thumbnail(readme, tmp_path):
-    path = tmp_path / "tavlund-thumbnail.toml"
+    path = tmp_path / "sawdust-lane-thumbnail.toml"
     path.write_text(toml_example(readme))
     preset = presets.load_preset(path)
     thumbnail = presets.load_preset("thumbnail")
@@ -213,7 +213,7 @@ def test_walkthrough_preset_loads_and_extends_thumbnail(readme, tmp_path):
 def test_walkthrough_error_line_is_what_the_loader_says(readme, tmp_path):
     example = toml_example(readme)
     assert "width = 640" in example
-    path = tmp_path / "style" / "tavlund-thumbnail.toml"
+    path = tmp_path / "style" / "sawdust-lane-thumbnail.toml"
     path.parent.mkdir()
     path.write_text(example.replace("width = 640", "widht = 640"))
     with pytest.raises(PresetError) as caught:
@@ -221,5 +221,5 @@ def test_walkthrough_error_line_is_what_the_loader_says(readme, tmp_path):
     shown = [line.strip() for line in section(readme, "Walkthrough").splitlines()
              if line.strip().startswith("error: ")]
     assert shown, "the walkthrough shows no error line"
-    expected = str(caught.value).replace(str(path), "style/tavlund-thumbnail.toml")
+    expected = str(caught.value).replace(str(path), "style/sawdust-lane-thumbnail.toml")
     assert shown[0] == f"error: {expected}"

@@ -116,3 +116,23 @@ def test_bad_input_is_one_line_exit_2(tmp_path, args):
     assert result.exit_code == 2
     assert "Traceback" not in result.output
     assert list(tmp_path.iterdir()) == []
+
+
+def test_variants_rendered_into_one_folder_keep_their_own_files(tmp_path):
+    # The demo sofa's KHR_materials_variants (its README: one material per named variant): oat
+    # is a light fabric (#c8b79c) and slate a dark one (#59606a), per assets_demo/make_catalog.py.
+    sofa = Path(__file__).parents[1] / "assets_demo" / "wool_sofa.glb"
+    for variant in ("oat", "slate"):
+        result = runner.invoke(app, ["render", str(sofa), "--size", "32x24", "--variant", variant,
+                                     "-o", str(tmp_path)])
+        assert result.exit_code == 0, result.output
+    assert sorted(p.name for p in tmp_path.iterdir()) == [
+        "wool_sofa-oat-still.png", "wool_sofa-slate-still.png"]
+
+    def covered_mean(name):
+        rgba = np.asarray(Image.open(tmp_path / name), np.float64)
+        covered = rgba[..., 3] == 255
+        assert covered.sum() > 50
+        return rgba[covered, :3].mean()
+
+    assert covered_mean("wool_sofa-oat-still.png") > covered_mean("wool_sofa-slate-still.png") + 30

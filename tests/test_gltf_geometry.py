@@ -1,7 +1,7 @@
 """Scene graph, accessors and primitives, on small files built in code (tests/gltf_builder.py).
 
-Every expected value is worked out in the test itself from the rule it checks (glTF 2.0 spec
-sections and gltf-checklist items named beside each check).
+Every expected value is worked out in the test itself from the rule it checks (the glTF 2.0
+spec section or extension README named beside each check).
 """
 
 from __future__ import annotations
@@ -33,7 +33,7 @@ def world_of(scene, local_vertex: int = 1) -> np.ndarray:
 # ---------------------------------------------------------------- transforms ---------------
 
 def test_trs_order_is_translate_rotate_scale(tmp_path):
-    # Spec §Transformations, checklist L2: T=(1,0,0), R=90° about +Z, S=(2,1,1) maps (1,0,0)
+    # Spec §Transformations: T=(1,0,0), R=90° about +Z, S=(2,1,1) maps (1,0,0)
     # to (1,2,0). Independently: scale -> (2,0,0); rotate by 90° -> (0,2,0); translate -> (1,2,0).
     # The wrong order T·S·R would give (1,1,0).
     half = math.pi / 4
@@ -48,14 +48,15 @@ def test_trs_order_is_translate_rotate_scale(tmp_path):
 
 
 def test_matrix_is_column_major(tmp_path):
-    # Spec §Transformations, checklist L2: [1,0,0,0, 0,1,0,0, 0,0,1,0, 5,6,7,1] translates (5,6,7)
+    # Spec §Transformations (column-major): [1,0,0,0, 0,1,0,0, 0,0,1,0, 5,6,7,1] translates (5,6,7)
     node = {"matrix": [1, 0, 0, 0, 0, 1, 0, 0, 0, 0, 1, 0, 5, 6, 7, 1]}
     scene = one_node(tmp_path, node=node, normals=UP)
     np.testing.assert_allclose(scene.positions[scene.triangles[0]], TRI + [5, 6, 7])
 
 
 def test_quaternion_is_xyzw(tmp_path):
-    # Checklist L3: q = [0, 0.70711, 0, 0.70711] (x,y,z,w) is +90° about +Y: +X -> (0,0,-1).
+    # Spec §Transformations (rotation is x, y, z, w): q = [0, 0.70711, 0, 0.70711] is +90° about
+    # +Y: +X -> (0,0,-1).
     # Read as (w,x,y,z) it would send +X to (0,0,+1).
     node = {"rotation": [0, 0.70711, 0, 0.70711]}
     scene = one_node(tmp_path, node=node, normals=UP)
@@ -84,7 +85,7 @@ def test_shared_mesh_is_instanced_per_node(tmp_path):
 
 
 def test_negative_determinant_flips_winding(tmp_path):
-    # Spec §Instantiation / checklist L4: under scale (-1,1,1) the front face stays the one the
+    # Spec §Instantiation: under scale (-1,1,1) the front face stays the one the
     # normal points out of, so the winding must be reversed. Check that the geometric normal of
     # the (counter-clockwise) world triangle agrees with the transformed shading normal (+Z).
     scene = one_node(tmp_path, node={"scale": [-1, 1, 1]}, normals=UP)
@@ -127,7 +128,7 @@ def test_flat_normals_when_normal_is_absent(tmp_path):
 # ---------------------------------------------------------------- accessors ----------------
 
 @pytest.mark.parametrize("dtype, stored, expected", [
-    # checklist L8 / Spec §Animations table: i8 max(c/127,-1), u8 c/255, i16 max(c/32767,-1),
+    # Spec §Animations, normalized integer table: i8 max(c/127,-1), u8 c/255, i16 max(c/32767,-1),
     # u16 c/65535
     (np.int8, [-128, 127, 0], [-1.0, 1.0, 0.0]),
     (np.uint8, [255, 0, 51], [1.0, 0.0, 0.2]),
@@ -143,8 +144,8 @@ def test_normalized_integer_positions(tmp_path, dtype, stored, expected):
 
 
 def test_quantized_cube_is_one_metre(tmp_path):
-    # Checklist §9 "Quantization ignored": a 1 m cube stored as normalized i16 with bbox 1 m,
-    # not 32767 m (trimesh 5.2 ignores `normalized`, checklist §8)
+    # KHR_mesh_quantization README: a 1 m cube stored as normalized i16 has a 1 m bbox, not
+    # 32767 m (trimesh 5.2 ignores `normalized`, as running it shows)
     corners = np.array([[x, y, z] for x in (0, 1) for y in (0, 1) for z in (0, 1)])
     q = (corners * 32767).astype(np.int16)
     faces = np.array([[0, 1, 3], [0, 3, 2], [4, 6, 7], [4, 7, 5], [0, 4, 5], [0, 5, 1],
@@ -155,8 +156,8 @@ def test_quantized_cube_is_one_metre(tmp_path):
 
 
 def test_interleaved_stride_equals_packed(tmp_path):
-    # Checklist L9: POSITION/NORMAL/TEXCOORD_0 interleaved with byteStride 32 decode to the same
-    # values as separate packed accessors
+    # Spec §Buffers and Buffer Views (byteStride): POSITION/NORMAL/TEXCOORD_0 interleaved with
+    # byteStride 32 decode to the same values as separate packed accessors
     rng = np.random.default_rng(1)
     p = rng.normal(size=(30, 3)).astype(np.float32)
     n = rng.normal(size=(30, 3)).astype(np.float32)
@@ -176,7 +177,7 @@ def test_interleaved_stride_equals_packed(tmp_path):
 
 
 def test_sparse_accessor_overrides_vertex(tmp_path):
-    # Spec §Sparse Accessors, checklist L10: quad with sparse index [3], value (5,5,5)
+    # Spec §Sparse Accessors: quad with sparse index [3], value (5,5,5)
     p, _, idx = quad()
     b = GltfBuilder()
     acc = b.sparse_accessor(p, 4, indices=[3], values=np.array([[5, 5, 5]], np.float32))
@@ -203,8 +204,8 @@ FIVE = np.array([[0, 0, 0], [1, 0, 0], [0, 1, 0], [1, 1, 0], [0, 2, 0]], np.floa
 
 @pytest.mark.parametrize("mode, expected", [
     (4, [(0, 1, 2)]),  # TRIANGLES: 5 indices -> one triangle, two ignored
-    (5, [(0, 1, 2), (1, 3, 2), (2, 3, 4)]),  # checklist L13 strip
-    (6, [(1, 2, 0), (2, 3, 0), (3, 4, 0)]),  # checklist L13 fan
+    (5, [(0, 1, 2), (1, 3, 2), (2, 3, 4)]),  # Vulkan spec "Primitive Topologies": strip
+    (6, [(1, 2, 0), (2, 3, 0), (3, 4, 0)]),  # Vulkan spec "Primitive Topologies": fan
 ])
 def test_strip_and_fan_order(tmp_path, mode, expected):
     normals = np.tile([0, 0, 1], (5, 1)).astype(np.float32)
@@ -222,7 +223,7 @@ def test_non_indexed_triangles(tmp_path):
 
 
 def test_points_and_lines_are_skipped_with_a_warning(tmp_path):
-    # Checklist L13: points and lines have no surface; skip them and say so
+    # Spec §Meshes (mode 0-3): points and lines cover no area; skip them and say so
     b = GltfBuilder()
     prims = [b.primitive(FIVE, mode=0), b.primitive(FIVE, mode=1), b.primitive(TRI, normals=UP)]
     b.scene([b.node(mesh=b.mesh(primitives=prims))])
@@ -232,7 +233,7 @@ def test_points_and_lines_are_skipped_with_a_warning(tmp_path):
 
 
 def test_colors_vec3_normalized_get_alpha_one(tmp_path):
-    # Spec §Meshes: COLOR_0 VEC3 -> alpha 1; normalized u8 c/255 (checklist L8)
+    # Spec §Meshes: COLOR_0 VEC3 -> alpha 1; normalized u8 c/255 (Spec §Animations table)
     c = np.array([[255, 0, 0], [0, 51, 0], [0, 0, 255]], np.uint8)
     scene = one_node(tmp_path, colors=c, normals=UP, normalized={"COLOR_0": True})
     np.testing.assert_allclose(scene.colors[:3], [[1, 0, 0, 1], [0, 0.2, 0, 1], [0, 0, 1, 1]],
@@ -240,7 +241,8 @@ def test_colors_vec3_normalized_get_alpha_one(tmp_path):
 
 
 def test_texcoords_both_sets(tmp_path):
-    # Checklist M10: TEXCOORD_0 and TEXCOORD_1 both reach the scene; normalized u16 UVs
+    # Spec §Meshes, §Materials (texCoord): TEXCOORD_0 and TEXCOORD_1 both reach the scene;
+    # normalized u16 UVs
     uv0 = np.array([[0, 0], [1, 0], [0, 1]], np.float32)
     uv1 = np.array([[65535, 0], [0, 65535], [0, 0]], np.uint16)
     scene = one_node(tmp_path, uv0=uv0, uv1=uv1, normals=UP, normalized={"TEXCOORD_1": True})
@@ -261,9 +263,9 @@ def test_given_tangents_follow_the_node_and_mirror(tmp_path):
 
 
 def test_generated_tangents_match_the_handedness_rule(tmp_path):
-    # Checklist §9 "Normal-map handedness": quad facing +Z with u -> +X and v -> -Y; generated
-    # tangents must equal the explicit TANGENT (1,0,0,1): T = +X and B = cross(N,T)·w = +Y, the
-    # direction of decreasing v (checklist M6).
+    # Spec §Meshes (TANGENT), glTF-Sample-Models issue #174: quad facing +Z with u -> +X and
+    # v -> -Y; generated tangents must equal the explicit TANGENT (1,0,0,1): T = +X and
+    # B = cross(N,T)·w = +Y, the direction of decreasing v.
     p, uv, idx = quad()
     b = GltfBuilder()
     tex = b.image_png(np.full((2, 2, 4), 128, np.uint8))
@@ -298,7 +300,7 @@ def two_scenes(tmp_path, default: int | None):
 
 
 def test_scene_choice(tmp_path):
-    # Checklist L1: the default scene, else scenes[0]; or a choice by index or name
+    # Spec §Scenes: the default scene, else (our choice) scenes[0]; or a choice by index or name
     path = two_scenes(tmp_path, default=1)
     assert load_scene(path).bounds()[1, 0] == 10
     assert load_scene(path, scene=0).bounds()[1, 0] == 1
@@ -312,7 +314,7 @@ def test_scene_choice(tmp_path):
 
 
 def test_glb_detected_by_magic_with_unknown_chunk(tmp_path):
-    # Checklist L18: unknown chunk types are ignored; GLB is recognised by magic, not extension
+    # Spec §GLB File Format: unknown chunk types are ignored; GLB is known by magic, not extension
     b = GltfBuilder()
     b.scene([b.node(mesh=b.mesh(TRI, normals=UP))])
     path = tmp_path / "renamed.gltf"
@@ -322,7 +324,8 @@ def test_glb_detected_by_magic_with_unknown_chunk(tmp_path):
 
 @pytest.mark.parametrize("mime", ["application/octet-stream", "application/gltf-buffer"])
 def test_data_uri_media_types(tmp_path, mime):
-    # Spec §URIs / checklist L16: both buffer media types are valid (pygltflib only reads one)
+    # Spec §URIs, §File Extensions and Media Types: both buffer media types are valid (pygltflib
+    # only reads one)
     b = GltfBuilder()
     b.scene([b.node(mesh=b.mesh(TRI, normals=UP))])
     assert load_scene(b.write_gltf(tmp_path / "d.gltf", mime=mime)).triangle_count == 1
@@ -347,8 +350,9 @@ def test_triangle_limit(tmp_path):
     b.scene([b.node(mesh=mesh), b.node(mesh=mesh, translation=[2, 0, 0])])
     path = b.write_glb(tmp_path / "l.glb")
     assert load_scene(path, max_triangles=2).triangle_count == 2
-    with pytest.raises(GltfError, match="limit of 1 triangles"):
+    with pytest.raises(GltfError, match="over the limit triangles 1") as err:
         load_scene(path, max_triangles=1)
+    assert err.value.field == "nodes[1]"  # the second instance passes the budget
 
 
 def test_nan_and_degenerate_triangles_dropped_with_warning(tmp_path):
@@ -362,7 +366,7 @@ def test_nan_and_degenerate_triangles_dropped_with_warning(tmp_path):
 
 
 def test_unsupported_required_extension_is_named(tmp_path):
-    # Checklist L20: extensionsRequired we do not implement -> error naming the extension
+    # Spec §Specifying Extensions: extensionsRequired we do not implement -> error naming it
     b = GltfBuilder()
     b.scene([b.node(mesh=b.mesh(TRI, normals=UP))])
     b.use_extension("EXT_meshopt_compression", required=True)
@@ -372,7 +376,7 @@ def test_unsupported_required_extension_is_named(tmp_path):
 
 
 def test_draco_compressed_primitive(tmp_path):
-    # KHR_draco_mesh_compression (checklist L22), decoded with DracoPy; positions quantised to
+    # KHR_draco_mesh_compression README, decoded with DracoPy; positions quantised to
     # 14 bits over a 1 m range, so within 1/2^14 of the original
     DracoPy = pytest.importorskip("DracoPy")
     p, _, idx = quad()

@@ -2,7 +2,7 @@
 
 The corpus in tests/data/hostile/ comes from make_hostile.py there; expected.json holds the JSON
 path and a message fragment for each file. Rules: glTF 2.0 spec (§GLB File Format, §Accessors,
-§Meshes, §Nodes and Hierarchy, §URIs) and our path policy (gltf-checklist L17).
+§Meshes, §Nodes and Hierarchy, §URIs) and our path policy (shots/gltf/container.py).
 """
 
 from __future__ import annotations
@@ -20,6 +20,7 @@ from hypothesis import strategies as st
 
 from shots.errors import GltfError
 from shots.gltf import load_scene
+from shots.limits import Limits
 from shots.scene import Scene
 
 HOSTILE = Path(__file__).parent / "data" / "hostile"
@@ -36,7 +37,7 @@ def test_corpus_is_large_enough():
 def test_hostile_file_is_refused_with_its_field(name):
     expected = EXPECTED[name]
     with pytest.raises(GltfError) as err:
-        load_scene(HOSTILE / name)
+        load_scene(HOSTILE / name, limits=Limits(**expected.get("limits", {})))
     assert err.value.field == expected["field"]
     assert expected["message"] in err.value.message
     assert str(HOSTILE / name) in str(err.value)
@@ -181,6 +182,13 @@ def test_rich_model_loads(fuzz_dir):
 @given(edits=st.lists(st.tuples(st.sampled_from(PATHS), json_values | st.just("<delete>")),
                       min_size=1, max_size=3))
 def test_mutated_json_raises_only_gltf_error(fuzz_dir, edits):
+    target = fuzz_dir / "mutated.gltf"
+    target.write_text(json.dumps(edited_tree(edits)))
+    load_bounded(target)
+
+
+def edited_tree(edits) -> dict:
+    """A copy of RICH_TREE with (path, value or "<delete>") edits applied."""
     tree = json.loads(json.dumps(RICH_TREE))
     for path, value in edits:
         node = tree
@@ -193,9 +201,7 @@ def test_mutated_json_raises_only_gltf_error(fuzz_dir, edits):
                 node[path[-1]] = value
         except (KeyError, IndexError, TypeError):
             continue  # an earlier edit removed or replaced this path
-    target = fuzz_dir / "mutated.gltf"
-    target.write_text(json.dumps(tree))
-    load_bounded(target)
+    return tree
 
 
 @settings(max_examples=120, deadline=2000, suppress_health_check=[HealthCheck.too_slow])
@@ -224,3 +230,12 @@ def test_mutated_json_text_raises_only_gltf_error(fuzz_dir, flips):
     target = fuzz_dir / "mutated_text.gltf"
     target.write_bytes(bytes(text))
     load_bounded(target)
+
+
+def test_equal_variant_names_are_made_unique():
+    from shots.gltf import unique_names
+
+    names = unique_names(["a"] * 4000)
+    assert len(set(names)) == 4000 and names[:3] == ["a", "a #2", "a #3"]
+    # a made-up name never takes one a later variant really has
+    assert unique_names(["a", "a", "a #2"]) == ["a", "a #3", "a #2"]

@@ -1,7 +1,7 @@
 """Materials, textures, samplers, variants, cameras and lights, on files built in code.
 
 Sources: glTF 2.0 spec §Materials, §Textures, §Samplers, §Cameras; the KHR extension READMEs
-(defaults quoted from their property tables); IEC 61966-2-1 for sRGB; gltf-checklist items.
+(defaults quoted from their property tables); IEC 61966-2-1 for sRGB.
 """
 
 from __future__ import annotations
@@ -86,7 +86,7 @@ def iec_decode(code: int) -> float:
 # ---------------------------------------------------------------- factors ------------------
 
 def test_core_factors(tmp_path):
-    # Spec §Materials: values copied; emissive × KHR_materials_emissive_strength (checklist M7:
+    # Spec §Materials: values copied; emissive × KHR_materials_emissive_strength (its README:
     # factor 1, strength 5 -> 5)
     scene = load_with(tmp_path, {
         "pbrMetallicRoughness": {"baseColorFactor": [0.2, 1, 0.7, 0.5], "metallicFactor": 0.25,
@@ -161,7 +161,7 @@ CORNERS = np.array([[[255, 0, 0, 255], [0, 255, 0, 255]],
 
 
 def test_texture_rows_start_at_the_image_top(tmp_path):
-    # Spec §Images: uv (0,0) is the first pixel of the image (top-left); checklist §9 "V flip":
+    # Spec §Images: uv (0,0) is the first pixel of the image (top-left), so with
     # TL red, TR green, BL blue, BR white -> atlas texels in that reading order
     b = GltfBuilder()
     tex = b.image_png(CORNERS)
@@ -176,8 +176,9 @@ def test_texture_rows_start_at_the_image_top(tmp_path):
 
 
 def test_colour_textures_are_srgb_decoded_and_data_textures_linear(tmp_path):
-    # Checklist M2/M3 and IEC 61966-2-1: one image with texel (255, 64, 192) used as base colour
-    # (sRGB) and as metallicRoughness (linear: roughness G = 0.251, metallic B = 0.753)
+    # Spec §Materials (metallicRoughnessTexture: G roughness, B metallic, linear), IEC 61966-2-1:
+    # one image with texel (255, 64, 192) used as base colour (sRGB) and as metallicRoughness
+    # (linear: roughness G = 0.251, metallic B = 0.753)
     b = GltfBuilder()
     tex = b.image_png(np.array([[[255, 64, 192, 128]]], np.uint8))
     scene = load_with(tmp_path, {"pbrMetallicRoughness": {
@@ -188,12 +189,12 @@ def test_colour_textures_are_srgb_decoded_and_data_textures_linear(tmp_path):
     np.testing.assert_allclose(srgb, [iec_decode(255), iec_decode(64), iec_decode(192),
                                       128 / 255], rtol=1e-6)
     np.testing.assert_allclose(linear[1:3], [0.251, 0.753], atol=5e-4)
-    assert iec_decode(128) == pytest.approx(0.21586, abs=1e-5)  # checklist C2 check value
+    assert iec_decode(128) == pytest.approx(0.21586, abs=1e-5)  # IEC 61966-2-1 decode of 128/255
 
 
 def test_srgb_slots(tmp_path):
-    # Checklist M3: emissive, specularColor and sheenColor are sRGB; transmission, clearcoat,
-    # normal and occlusion are linear
+    # Spec §Materials and the KHR_materials_* READMEs: emissive, specularColor, sheenColor are
+    # sRGB; transmission, clearcoat, normal and occlusion are linear
     b = GltfBuilder()
     tex = b.image_png(np.full((1, 1, 3), 128, np.uint8))
     ref = {"index": tex}
@@ -220,7 +221,7 @@ def test_srgb_slots(tmp_path):
 
 
 def test_sampler_codes(tmp_path):
-    # Spec §Samplers / checklist M9: codes stored as given; no sampler -> REPEAT, and we pick
+    # Spec §Samplers: codes stored as given; no sampler -> REPEAT, and we pick
     # LINEAR magnification when it is undefined
     b = GltfBuilder()
     clamp = b.image_png(CORNERS, sampler={"wrapS": 33071, "wrapT": 33648, "magFilter": 9728})
@@ -237,7 +238,7 @@ def test_sampler_codes(tmp_path):
 
 
 def test_texture_transform_worked_example():
-    # Checklist M8 (KHR_texture_transform worked example): offset (0,1), rotation π/2, scale
+    # KHR_texture_transform README, worked example: offset (0,1), rotation π/2, scale
     # (0.5,0.5) maps corners (0,0),(1,0),(1,1),(0,1) to (0,1),(0,0.5),(0.5,0.5),(0.5,1)
     m = texture_transform([0, 1], math.pi / 2, [0.5, 0.5]).astype(np.float64)
     corners = np.array([[0, 0, 1], [1, 0, 1], [1, 1, 1], [0, 1, 1]], np.float64)
@@ -297,7 +298,7 @@ def test_materials_variants(tmp_path):
 # ---------------------------------------------------------------- cameras and lights -------
 
 def test_camera_world_transform(tmp_path):
-    # Spec §Cameras: the camera sits at its node; checklist L5 (looks along its -Z)
+    # Spec §Cameras: the camera sits at its node; §View Matrix (it looks along its -Z)
     b = GltfBuilder()
     b.gltf["cameras"] = [{"type": "perspective", "perspective": {"yfov": 0.66, "znear": 0.1}}]
     cam = b.node(camera=0, translation=[0, 1, 5], rotation=[0, 0.70711, 0, 0.70711])

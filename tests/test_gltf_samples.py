@@ -1,7 +1,7 @@
 """Every Khronos sample model in tests/data/samples/ loads and agrees with independent readers.
 
-Oracles: trimesh 5.2 (world bounds, triangle counts; wrong for sparse accessors and fans, per
-gltf-checklist §8), VTK's glTF reader through pyvista, the accessors' declared min/max
+Oracles: trimesh 5.2 (world bounds, triangle counts; wrong for sparse accessors and fans, as
+running it shows), VTK's glTF reader through pyvista, the accessors' declared min/max
 (Spec §Accessors: POSITION must declare them), and MANIFEST.json (bbox_spec_* computed from the
 glTF by the sample set's curator). Licences: tests/data/samples/NOTICE.md.
 """
@@ -43,7 +43,8 @@ from shots.scene import (
 SAMPLES = Path(__file__).parent / "data" / "samples"
 MANIFEST = json.loads((SAMPLES / "MANIFEST.json").read_text())
 MODELS = {m["name"]: m for m in MANIFEST["models"]}
-# gltf-checklist §8 and the manifest's loader_notes: trimesh ignores sparse data and drops fans
+# The manifest's loader_notes, confirmed by running trimesh 5.2: it ignores sparse data and drops
+# fans
 TRIMESH_WRONG = {"SimpleSparseAccessor", "MeshPrimitiveModes"}
 # VTK counts points and lines as cells and puts them in its bounds; it cannot open raw-space URIs
 VTK_UNUSABLE = {"MeshPrimitiveModes", "BoxWithSpaces"}
@@ -128,7 +129,8 @@ def test_triangle_count_matches_manifest(name):
 
 @pytest.mark.parametrize("name", sorted(set(MODELS) - TRIMESH_WRONG))
 def test_world_bounds_match_trimesh(name):
-    # trimesh 5.2 applies TRS in the right order and reorders quaternions correctly (checklist §8)
+    # trimesh 5.2 applies TRS in the right order and reads quaternions as (x, y, z, w), as the spec
+    # says (§Transformations)
     expected = trimesh_scene(name).bounds
     np.testing.assert_allclose(scene_of(name).bounds(), expected, rtol=1e-5, atol=1e-7)
 
@@ -172,7 +174,7 @@ def test_positions_match_declared_min_max(name):
 
 
 def test_sparse_sample_uses_the_sparse_values():
-    # MANIFEST bbox_spec_max (4.0 in y, from the sparse values); trimesh says 1.0 (checklist §8)
+    # MANIFEST bbox_spec_max (4.0 in y, from the sparse values); trimesh says 1.0
     model = MODELS["SimpleSparseAccessor"]
     bounds = scene_of("SimpleSparseAccessor").bounds()
     np.testing.assert_allclose(bounds, [model["bbox_spec_min"], model["bbox_spec_max"]])

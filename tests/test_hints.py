@@ -1,6 +1,6 @@
 """Units and up-axis hints on boxes of known size, scaled and turned like a wrong export would be.
 
-Sizes come from the Tavlund demo catalog (assets_demo/catalog.json: width along X, depth along Z,
+Sizes come from the demo catalog (assets_demo/catalog.json: width along X, depth along Z,
 height along Y, metres); glTF 2.0 spec §Coordinate System and Units says metres and +Y up. The
 turns are built with trimesh.transformations, an independent library.
 """
@@ -65,7 +65,7 @@ def test_the_demo_models_give_no_hint(product):
 
 
 def test_centimetre_chair():
-    # The Ekra chair, 46 × 84 × 50 cm (catalog.json), exported with 1 unit = 1 cm.
+    # The oak dining chair, 46 × 84 × 50 cm (catalog.json), exported with 1 unit = 1 cm.
     hints = model_hints(box_scene(46.0, 84.0, 50.0))
     assert hints == ['bounds 46 × 84 × 50 units: looks like centimetres (set [model] units = "cm")']
 

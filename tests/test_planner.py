@@ -91,8 +91,7 @@ def projected_box(camera: Camera, scene: Scene | np.ndarray) -> tuple[np.ndarray
 
 def assert_fills(camera: Camera, scene, fill: float, tolerance: float = 0.01):
     """The limiting side of the projected box spans ``fill`` of the frame, the other side no
-    more, and the box is centred. (The brief asks for one pixel; the fit is exact, so this
-    checks a hundredth.)"""
+    more, and the box is centred. (The fit is exact, so this checks a hundredth of a pixel.)"""
     low, high = projected_box(camera, scene)
     span, frame = high - low, np.array([camera.width, camera.height], float)
     limiting = int(np.argmax(span / frame))
@@ -158,8 +157,8 @@ def test_tight_view_keeps_the_named_direction():
     np.testing.assert_allclose(view / np.linalg.norm(view), expected, atol=1e-9)
 
 
-def test_sphere_framing_distance_matches_the_checklist():
-    # Checklist R6: distance = r / sin(fov_min / 2); r = 1, fov 40° → 2.9238.
+def test_sphere_framing_distance_is_radius_over_sine_of_half_fov():
+    # Right triangle eye–centre–tangent point: distance = r / sin(fov_min / 2); r = 1, 40° → 2.9238.
     scene = mesh_scene(trimesh.creation.icosphere(subdivisions=3))
     shot = {"name": "t", "kind": "turntable", "frames": 8, "framing": "sphere", "fill": 1.0,
             "yfov_deg": 40, "elevation_deg": 10}
@@ -252,7 +251,7 @@ def test_fixed_scale_refuses_a_camera_inside_the_model():
 
 
 def test_named_views_follow_gltf_directions():
-    # glTF 2.0 spec §Coordinate System and Units (checklist L6): the front faces +Z and the
+    # glTF 2.0 spec §Coordinate System and Units: the front faces +Z and the
     # model's left side +X; in a front view a marker at +X appears in the right half.
     scene = box((1, 1, 1))
     shot = {"name": "v", "kind": "views", "views": ["front", "back", "left", "right", "top"],
@@ -353,7 +352,7 @@ def file_camera_scene() -> Scene:
 
 
 def test_file_camera_view_is_the_node_transform_without_scale():
-    # glTF 2.0 spec §Cameras (View Matrix) and checklist L5: view = inverse of the node's world
+    # glTF 2.0 spec §Cameras (View Matrix): view = inverse of the node's world
     # transform with its scale removed; the camera looks down its −Z.
     scene = file_camera_scene()
     world = scene.cameras[0].world.copy()
@@ -361,7 +360,7 @@ def test_file_camera_view_is_the_node_transform_without_scale():
     camera = camera_from_file(scene.cameras[0], (100, 80), Extent.of(scene))
     np.testing.assert_allclose(camera.view_matrix(), np.linalg.inv(world), atol=1e-12)
     assert camera.yfov == 0.6
-    assert (camera.width, camera.height) == (120, 80)  # checklist L25: W = round(H·aspectRatio)
+    assert (camera.width, camera.height) == (120, 80)  # Spec §Cameras: aspectRatio = W / H
     plan = camera_from_file(scene.cameras[1], (100, 80), Extent.of(scene))
     assert plan.kind == ORTHOGRAPHIC and plan.ymag == 1.0 and plan.width == 160
 
@@ -439,7 +438,8 @@ def test_rig_light_units():
     normal = np.cross(edge_u, edge_v)
     np.testing.assert_allclose(normal / np.linalg.norm(normal), key.direction, atol=1e-12)
     assert abs(edge_u[1]) < 1e-12  # the long edge is horizontal
-    # Spot light: illuminance E at the centre → candela I = E·d² (inverse-square law, P2).
+    # Spot light: illuminance E at the centre → candela I = E·d² (inverse-square law, as in
+    # KHR_lights_punctual).
     assert spot.intensity == pytest.approx(2 * (3 * extent.radius) ** 2)
     assert spot.outer_cone == pytest.approx(math.radians(25))
     assert spot.inner_cone == pytest.approx(math.radians(10))

@@ -35,7 +35,7 @@ def unit_box() -> Scene:
     )
 
 
-def test_the_presets_the_brief_asks_for_are_shipped():
+def test_thumbnail_hero_turntable_elevation_still_and_rig_presets_are_shipped():
     names = set(builtin_preset_names())
     assert {"thumbnail", "hero", "turntable-24", "turntable-36", "turntable-72", "elevations",
             "rig-three-point", "rig-soft-overhead", "rig-high-key", "still"} <= names

@@ -38,7 +38,7 @@ def test_buffer_is_premultiplied_rgba_with_transparent_background():
 
 
 def test_edge_pixels_have_fractional_coverage():
-    # checklist C6: accumulate premultiplied; an edge through a pixel's centre covers half of
+    # Porter & Duff 1984: accumulate premultiplied; an edge through a pixel's centre covers half of
     # its (symmetric, tent) filter, so alpha ≈ 0.5 with the colour of the surface × alpha (the
     # quad is unlit white, so rgb == alpha)
     row = diffuse(P_UNLIT=1.0)
@@ -59,8 +59,8 @@ def test_edge_pixels_have_fractional_coverage():
     ],
 )
 def test_background_colours_are_decoded_from_srgb(background, top, bottom):
-    # Background colours are display sRGB: linear = IEC 61966-2-1 decode (checklist C2:
-    # decode(0.5) = 0.21404); a gradient runs from the top row to the bottom row
+    # Background colours are display sRGB: linear = IEC 61966-2-1 decode
+    # (decode(0.5) = 0.21404); a gradient runs from the top row to the bottom row
     camera = ortho_camera(16, 1.0)
     image = render(sphere(0.1, (0, 0, -3)), camera, look(background=background))
     top_row, bottom_row = image[0, 0], image[-1, 0]
@@ -99,7 +99,7 @@ def test_kernel_camera_rays_match_camera_module():
 
 
 def test_reruns_are_bit_identical_and_independent_of_threads():
-    # checklist C7: same input → same bytes; random numbers are hashes of (seed, pixel, sample)
+    # Same input → same bytes; random numbers are hashes of (seed, pixel, sample)
     prepared = prepare_scene(sphere(rows=[diffuse(P_ROUGHNESS=0.3)]))
     camera = Camera(eye=(0, 1, 4), target=(0, 0, 0), up=(0, 1, 0), width=24, height=24)
     settings = look(LIGHT, env=Environment(), ground="shadow_catcher", samples=4, seed=7)

@@ -37,8 +37,8 @@ def test_centimetre_model_is_hinted_and_metre_model_is_not(tmp_path):
 def test_a_demo_model_in_centimetres_gets_one_hint_line_naming_it(tmp_path):
     # The demo chair scaled ×100 by its root node (tests/broken_copies.py): 46 × 84 × 50 units,
     # a chair's size in centimetres read as metres (glTF 2.0 spec §Coordinate System and Units).
-    copy = scaled_copy("tavlund_ekra_chair", tmp_path / "models")
-    intact = intact_copy("tavlund_ekra_chair", tmp_path / "models")
+    copy = scaled_copy("oak_dining_chair", tmp_path / "models")
+    intact = intact_copy("oak_dining_chair", tmp_path / "models")
     result = runner.invoke(app, ["render", str(copy), "-o", str(tmp_path / "a"), "--size", "24x24"])
     assert result.exit_code == 0, result.output
     hints = [line for line in result.output.splitlines() if line.startswith("warning:")]

@@ -55,7 +55,7 @@ def unlit(color=(1.0, 1.0, 1.0), **values):
 
 # --- lights ------------------------------------------------------------------------------------
 def test_lambert_sphere_under_directional_light():
-    # Lambert's cosine law: L = albedo · E · cos θ / π (checklist P2)
+    # Lambert's cosine law: L = albedo · E · cos θ / π
     albedo, lux = 0.8, 3.0
     to_light = np.array([0.3, 0.4, math.sqrt(0.75)])
     scene = sphere(rows=[diffuse((albedo,) * 3, **LAMBERT)])
@@ -74,7 +74,7 @@ def test_lambert_sphere_under_directional_light():
 
 @pytest.mark.parametrize("distance", [1.0, 2.0])
 def test_point_light_inverse_square(distance):
-    # KHR_lights_punctual: E = I cos θ / d² (checklist P2: 1 cd at 1 m head-on → 0.31831 from a
+    # KHR_lights_punctual: E = I cos θ / d² (1 cd at 1 m head-on → 1/π = 0.31831 from a
     # white Lambert surface; at 2 m → 0.07958)
     scene = quad(size=2.0, rows=[diffuse(**LAMBERT)])
     camera = ortho_camera(21, half_height=1.0)
@@ -88,8 +88,8 @@ def test_point_light_inverse_square(distance):
 
 
 def test_range_window_and_spot_cone():
-    # KHR_lights_punctual "Range Property": window at d = range/2 is 0.9375 (checklist P3);
-    # "Inner and Outer Cone Angles": outer π/4, inner 0, 22.5° off axis → 0.54776 (checklist P4)
+    # KHR_lights_punctual "Range Property": window at d = range/2 is 1 − (1/2)⁴ = 0.9375;
+    # "Inner and Outer Cone Angles": outer π/4, inner 0, 22.5° off axis → 0.54776
     lights = pack_lights(
         (
             Light("point", intensity=1.0, position=(0.0, 0.0, 0.0), range=4.0),
@@ -122,7 +122,7 @@ def test_square_area_light_irradiance():
 
 
 def test_light_direction():
-    # checklist §9 "Light direction": a directional light with identity rotation travels along
+    # A directional light with identity rotation travels along
     # −Z (KHR_lights_punctual: light points down the node's −Z); only a +Z-facing quad is lit
     light = Light(DIRECTIONAL, intensity=1.0, direction=(0.0, 0.0, -1.0))
     facing_plus = quad(size=2.0, rows=[diffuse(**LAMBERT)])
@@ -181,7 +181,7 @@ def test_clearcoat_reflects_four_percent_head_on():
 
 
 def test_occlusion_darkens_only_the_environment_term():
-    # checklist §9 "Occlusion on direct light" and M2: occlusion affects indirect light only
+    # Spec §Materials, occlusionTexture: occlusion applies to indirect light only
     tex = single_texture(np.array([[[0.0, 0.0, 0.0, 1.0]]]))
     occluded = quad(size=2.0, rows=[diffuse()], textures=tex,
                     table=textured_table(diffuse(), {T_OCCLUSION: 0}))  # fmt: skip
@@ -199,7 +199,7 @@ RED, GREEN, BLUE, WHITE = (1, 0, 0, 1), (0, 1, 0, 1), (0, 0, 1, 1), (1, 1, 1, 1)
 
 
 def test_texture_orientation():
-    # checklist §9 "V flip / mirrored U": uv (0, 0) is the image's top-left (spec §Images);
+    # A V flip or mirrored U shows here: uv (0, 0) is the image's top-left (spec §Images);
     # 2×2 NEAREST texture TL red, TR green, BL blue, BR white
     tex = single_texture(np.array([[RED, GREEN], [BLUE, WHITE]]))
     scene = quad(size=2.0, textures=tex, table=textured_table(unlit(), {T_BASE_COLOR: 0}))
@@ -211,7 +211,7 @@ def test_texture_orientation():
 
 
 def test_texture_transform_rotation():
-    # checklist M8 (KHR_texture_transform worked example): offset (0, 1), rotation π/2, scale 0.5
+    # KHR_texture_transform README, worked example: offset (0, 1), rotation π/2, scale 0.5
     # maps quad corners (0,0),(1,0),(1,1),(0,1) to (0,1),(0,0.5),(0.5,0.5),(0.5,1), using
     # u' = cos·u + sin·v, v' = −sin·u + cos·v after scaling, then the offset
     rot, scale, offset = math.pi / 2, 0.5, (0.0, 1.0)
@@ -231,7 +231,8 @@ def test_texture_transform_rotation():
 
 
 def test_wrap_modes():
-    # checklist M9: repeat 2.2 → 0.2, −0.4 → 0.6; mirrored 2.2 → 0.2, −0.4 → 0.4, 1.3 → 0.7
+    # Spec §Samplers (wrap modes): repeat 2.2 → 0.2, −0.4 → 0.6; mirrored 2.2 → 0.2, −0.4 → 0.4,
+    # 1.3 → 0.7
     for x, mode, expected in [(2.2, WRAP_REPEAT, 0.2), (-0.4, WRAP_REPEAT, 0.6),
                               (2.2, WRAP_MIRROR, 0.2), (-0.4, WRAP_MIRROR, 0.4),
                               (1.3, WRAP_MIRROR, 0.7), (1.3, WRAP_CLAMP, 1.0),
@@ -254,8 +255,8 @@ def test_wrap_modes():
 
 
 def test_metal_rough_channels_are_linear_and_not_swapped():
-    # checklist §9: white material, MR texel (0, 128, 0) (G roughness 0.502, B metallic 0; linear,
-    # spec §Materials), point light, L = V = N → f = 0.35572 (sRGB-decoded: 1.7717; swapped:
+    # Spec §Materials and Appendix B: white material, MR texel (0, 128, 0) (G roughness 0.502,
+    # B metallic 0; linear), point light, L = V = N → f = 0.35572 (sRGB-decoded: 1.7717; swapped:
     # mirror metal)
     tex = single_texture(np.array([[[0.0, 128 / 255, 0.0, 1.0]]]))
     table = textured_table(material(), {T_METALLIC_ROUGHNESS: 0})
@@ -266,8 +267,8 @@ def test_metal_rough_channels_are_linear_and_not_swapped():
 
 
 def test_emissive_texture_is_not_decoded_twice():
-    # checklist §9 "sRGB twice / never": emissive-only quad, texture code 128 (decoded once into
-    # the atlas by the loader, IEC 61966-2-1), factor 1, no tone map → output code 128
+    # Spec §Materials (emissiveTexture is sRGB): emissive-only quad, texture code 128 (decoded once
+    # into the atlas by the loader, IEC 61966-2-1), factor 1, no tone map → output code 128
     code = srgb_to_linear(128 / 255)
     tex = single_texture(np.array([[[code, code, code, 1.0]]]))
     row = material(P_BASE_R=[0.0, 0.0, 0.0], P_METALLIC=0.0, P_EMISSIVE_R=[1.0, 1.0, 1.0],
@@ -280,9 +281,10 @@ def test_emissive_texture_is_not_decoded_twice():
 
 @pytest.mark.parametrize("tangent", [(1.0, 0.0, 0.0, 1.0), None])
 def test_normal_map_handedness(tangent):
-    # checklist §9 "Normal-map handedness": quad facing +Z, texel (128, 218, 218) → shading normal
-    # ≈ (0, 0.707, 0.707) with TANGENT (1, 0, 0, 1) and with tangents made from uvs (u → +X,
-    # v → −Y). Lit along (0, 1, 1)/√2 it reflects E/π·(n·l) ≈ E/π; the flipped normal gives ~0.
+    # Spec §Materials normalTexture, §Meshes TANGENT: quad facing +Z, texel (128, 218, 218) →
+    # shading normal ≈ (0, 0.707, 0.707) with TANGENT (1, 0, 0, 1) and with tangents made from uvs
+    # (u → +X, v → −Y). Lit along (0, 1, 1)/√2 it reflects E/π·(n·l) ≈ E/π; the flipped normal
+    # gives ~0.
     texel = np.array([128, 218, 218]) / 255
     n = 2 * texel - 1
     n /= np.linalg.norm(n)
@@ -298,8 +300,8 @@ def test_normal_map_handedness(tangent):
 
 # --- coverage: alpha modes, sides, background --------------------------------------------------
 def test_alpha_modes():
-    # spec §Materials "Alpha Coverage" (checklist M4): MASK keeps α ≥ cutoff (α = 0.5, cutoff 0.5
-    # → opaque) and drops the rest; BLEND composites Porter–Duff over, premultiplied (C6)
+    # spec §Materials "Alpha Coverage": MASK keeps α ≥ cutoff (α = 0.5, cutoff 0.5 → opaque) and
+    # drops the rest; BLEND composites "over", premultiplied (Porter & Duff 1984)
     camera = ortho_camera(4, 0.5)
 
     def one(mode, alpha):
@@ -318,7 +320,7 @@ def test_alpha_modes():
 
 
 def test_single_sided_back_faces_are_skipped():
-    # spec §Materials "doubleSided" (checklist M5, §9 "Winding"): a single-sided quad facing away
+    # spec §Materials "doubleSided": a single-sided quad facing away
     # shows the background; double-sided it is visible, lit on its camera-facing side
     camera = ortho_camera(4, 0.5, eye=(0, 0, -5))
     light = Light(DIRECTIONAL, direction=(0.0, 0.0, 1.0))
@@ -336,7 +338,7 @@ GLASS = dict(P_TRANSMISSION=1.0, P_METALLIC=0.0, P_ROUGHNESS=0.0, P_IOR=1.5)
 
 @pytest.mark.parametrize("thickness, expected", [(0.02, 0.25), (0.01, 0.5)])
 def test_beer_lambert_through_a_slab(thickness, expected):
-    # KHR_materials_volume: T = c^(x/d) over the traced distance (checklist M11: c = 0.5,
+    # KHR_materials_volume: T = c^(x/d) over the traced distance (c = 0.5,
     # d = 1 cm, x = 2 cm → 0.25), times (1 − F0)² for the two faces at normal incidence (F0 0.04)
     glass = material(P_THICKNESS=thickness, P_ATTENUATION_DISTANCE=0.01,
                      P_ATTENUATION_R=[0.5, 0.5, 0.5], **GLASS)  # fmt: skip

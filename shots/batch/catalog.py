@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -17,14 +18,27 @@ class CatalogModel:
 
     Attributes
     ----------
-    path : the model file (absolute).
+    path : the model file (absolute, links not followed: its folder is the one its
+        resources must stay in, as for ``shots render``).
     name : the file-name-safe model name used in output paths (the file's stem).
     listed_as : how the source names it (relative to the folder or as written in the list).
+    root : for a catalog folder, that folder: the model file must really lie inside it.
     """
 
     path: Path
     name: str
     listed_as: str
+    root: Path | None = None
+
+    def escapes_root(self) -> bool:
+        """Whether the file is a link (or under a linked folder) leading outside ``root``."""
+        if self.root is None:
+            return False
+        try:
+            real, root = self.path.resolve(), self.root.resolve()
+        except (OSError, RuntimeError):
+            return True  # a symlink loop
+        return not real.is_relative_to(root)
 
 
 def find_models(source: Path) -> list[CatalogModel]:
@@ -59,7 +73,7 @@ def _from_folder(folder: Path) -> list[CatalogModel]:
         and not any(part.startswith(".") for part in path.relative_to(folder).parts)
     ]
     found.sort(key=lambda p: p.relative_to(folder).as_posix())
-    return [_model(path, path.relative_to(folder).as_posix()) for path in found]
+    return [_model(path, path.relative_to(folder).as_posix(), folder) for path in found]
 
 
 def _from_list(list_file: Path) -> list[CatalogModel]:
@@ -79,5 +93,6 @@ def _from_list(list_file: Path) -> list[CatalogModel]:
     return models
 
 
-def _model(path: Path, listed_as: str) -> CatalogModel:
-    return CatalogModel(path=path.resolve(), name=safe_name(path.stem), listed_as=listed_as)
+def _model(path: Path, listed_as: str, root: Path | None = None) -> CatalogModel:
+    return CatalogModel(path=Path(os.path.abspath(path)), name=safe_name(path.stem),
+                        listed_as=listed_as, root=None if root is None else Path(os.path.abspath(root)))

@@ -48,10 +48,20 @@ def model_hashes(path: Path) -> tuple[str, str]:
     combined = hashlib.sha256(file_hash.encode())
     folder = path.parent.resolve()
     for uri in sorted(_external_uris(path)):
-        target = (folder / unquote(uri)).resolve()
-        inside = target.is_relative_to(folder) and target.is_file()
-        combined.update(f"\n{uri}\n{sha256_file(target) if inside else 'missing'}".encode())
+        combined.update(f"\n{uri}\n{_resource_hash(folder, uri)}".encode())
     return file_hash, combined.hexdigest()
+
+
+def _resource_hash(folder: Path, uri: str) -> str:
+    """SHA-256 of a referenced file inside ``folder``, else "missing" (the loader says why:
+    a NUL once decoded, a symlink loop, a path leaving the folder)."""
+    try:
+        target = (folder / unquote(uri)).resolve()
+        if target.is_relative_to(folder) and target.is_file():
+            return sha256_file(target)
+    except (OSError, ValueError, RuntimeError):
+        pass
+    return "missing"
 
 
 def _external_uris(path: Path) -> set[str]:
@@ -82,11 +92,14 @@ def _external_uris(path: Path) -> set[str]:
 def preset_sha256(preset: Preset) -> str:
     """SHA-256 of the resolved preset as canonical JSON (sorted keys, no spaces).
 
-    The description is left out (it changes no pixel); an environment image is represented by
-    its content hash rather than its path, so moving the preset does not re-render a catalog.
+    The description, the check's tolerances and the limits are left out (they change no
+    pixel); an environment image is represented by its content hash rather than its path, so
+    moving the preset does not re-render a catalog.
     """
     data = preset.model_dump(mode="json")
     data.pop("description", None)
+    data.pop("check", None)
+    data.pop("limits", None)
     image = data.get("environment", {}).get("image")
     if image:
         data["environment"]["image"] = "sha256:" + sha256_file(Path(image))

@@ -26,8 +26,10 @@ MANIFEST_FOLDER = "manifests"
 INDEX_JSON = "index.json"
 INDEX_CSV = "index.csv"
 CONTACT_SHEET = "contact_sheet.png"
-REPORT_MD, REPORT_JSON = "report.md", "report.json"  # the consistency report (shots.check)
-RESERVED = (INDEX_JSON, INDEX_CSV, CONTACT_SHEET, REPORT_MD, REPORT_JSON)
+# the consistency report and review page, and its difference pictures (shots.check)
+REPORT_MD, REPORT_JSON, REVIEW_HTML = "report.md", "report.json", "review.html"
+DIFFERENCES_FOLDER = "differences"
+RESERVED = (INDEX_JSON, INDEX_CSV, CONTACT_SHEET, REPORT_MD, REPORT_JSON, REVIEW_HTML)
 
 
 class FrameNumber(int):
@@ -168,7 +170,7 @@ class Layout:
         if not target.is_relative_to(self.out_dir) or target == self.out_dir:
             raise BatchError("--template", self.template, f"{relative!r} leaves the output folder")
         posix = "/".join(parts)
-        if posix in RESERVED or parts[0] == MANIFEST_FOLDER:
+        if parts[0] in RESERVED or parts[0] in (MANIFEST_FOLDER, DIFFERENCES_FOLDER):
             raise BatchError("--template", self.template,
                              f"{posix!r} is where the batch keeps its own files")
         return posix

@@ -86,10 +86,30 @@ def index_document(header: dict, models: list[dict], frames: list[dict],
     }
 
 
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def spreadsheet_safe(value: object) -> object:
+    """A text cell that a spreadsheet would run as a formula, prefixed with ``'`` so it is read
+    as text (OWASP, "CSV Injection"); numbers and other text pass unchanged."""
+    if isinstance(value, str) and value.startswith(FORMULA_STARTS):
+        return "'" + value
+    return value
+
+
+class _SafeWriter(csv.DictWriter):
+    def writerow(self, rowdict):
+        return super().writerow({k: spreadsheet_safe(v) for k, v in rowdict.items()})
+
+
 def index_csv_bytes(frames: list[dict], animations: list[dict]) -> bytes:
-    """One CSV row per output file: PNG frames, their EXR twins and animations."""
+    """One CSV row per output file: PNG frames, their EXR twins and animations.
+
+    Names come from model files (variant names) and folders, so formula-like cells are
+    neutralised (``spreadsheet_safe``); index.json keeps every value exactly.
+    """
     buffer = io.StringIO()
-    writer = csv.DictWriter(buffer, fieldnames=CSV_COLUMNS, lineterminator="\n")
+    writer = _SafeWriter(buffer, fieldnames=CSV_COLUMNS, lineterminator="\n")
     writer.writeheader()
     for entry in frames:
         common = {k: entry[k] for k in ("model", "variant", "shot", "frame", "view", "width",

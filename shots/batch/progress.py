@@ -12,7 +12,6 @@ import time
 from pathlib import Path
 
 from rich.console import Console
-from rich.markup import escape
 from rich.progress import (
     BarColumn,
     MofNCompleteColumn,
@@ -21,6 +20,8 @@ from rich.progress import (
     TimeElapsedColumn,
     TimeRemainingColumn,
 )
+
+from shots.terminal import literal
 
 
 class Reporter:
@@ -87,13 +88,13 @@ class Reporter:
         the file and the preset key that fixes it, as ``shots render`` prints it."""
         self.event("hint", model=model, file=listed_as, hint=text)
         if not self.quiet:
-            self.console.print(f"[yellow]warning:[/] {escape(listed_as)}: {escape(text)}",
+            self.console.print(f"[yellow]warning:[/] {literal(listed_as)}: {literal(text)}",
                                highlight=False, soft_wrap=True)
 
     def note(self, message: str) -> None:
         """A line for people (not in quiet mode)."""
         if not self.quiet:
-            self.console.print(escape(message), highlight=False, soft_wrap=True)
+            self.console.print(literal(message), highlight=False, soft_wrap=True)
 
     def event(self, kind: str, **fields) -> None:
         if self.log is None:
@@ -115,19 +116,21 @@ def print_summary(summary, console: Console) -> None:
                                                                "failed") else "left")
     for model in summary.models:
         status = "[red]failed[/]" if model.error else "ok"
-        table.add_row(model.listed_as, ", ".join(model.variants) or "-", str(model.rendered),
+        table.add_row(literal(model.listed_as), literal(", ".join(model.variants) or "-"),
+                      str(model.rendered),
                       str(model.skipped), str(model.failed), status)
     table.add_row("total", "", str(summary.frames_rendered), str(summary.frames_skipped),
                   str(summary.frames_failed), f"{len(summary.failures)} failed", end_section=True)
     console.print(table)
     for note in summary.notes:
-        console.print(escape(note), highlight=False, soft_wrap=True)
+        console.print(literal(note), highlight=False, soft_wrap=True)
     for image, reasons in summary.flagged:
-        console.print(f"[yellow]flagged:[/] {escape(str(image))}: {escape('; '.join(reasons))}", highlight=False,
+        console.print(f"[yellow]flagged:[/] {literal(str(image))}: {literal('; '.join(reasons))}", highlight=False,
                       soft_wrap=True)
     if summary.report is not None:
-        console.print(f"consistency report: {summary.report} "
-                      f"({len(summary.flagged)} image(s) flagged)", highlight=False)
+        console.print(f"consistency report: {literal(summary.report)} "
+                      f"({len(summary.flagged)} image(s) flagged), review page: "
+                      f"{literal(summary.report.with_name('review.html'))}", highlight=False)
     for listed_as, reason in summary.failures:
-        console.print(f"[bold red]failed:[/] {escape(listed_as)}: {escape(reason)}", highlight=False,
+        console.print(f"[bold red]failed:[/] {literal(listed_as)}: {literal(reason)}", highlight=False,
                       soft_wrap=True)

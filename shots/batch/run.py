@@ -15,6 +15,7 @@ which and why.
 
 from __future__ import annotations
 
+import hashlib
 import re
 import time
 from collections import deque
@@ -27,10 +28,16 @@ from shots.batch.catalog import CatalogModel, find_models
 from shots.batch.jobs import DEFAULT_VARIANT, FrameId, ModelVariantJob, RenderTask
 from shots.batch.layout import CONTACT_SHEET, INDEX_CSV, INDEX_JSON, Layout
 from shots.batch.progress import Reporter
-from shots.batch.runner import WORKER_DIED, ProcessRunner, available_cores, make_runner
+from shots.batch.runner import (
+    WORKER_DIED,
+    ClusterTls,
+    ProcessRunner,
+    available_cores,
+    make_runner,
+)
 from shots.batch.sheet import CELL, SheetCell, contact_sheet_bytes, thumbnail
 from shots.batch.worker import TaskResult, exr_available, probe_variants, render_task
-from shots.check.judge import Tolerances
+from shots.check.judge import mask_rules
 from shots.check.measure import measure_codes
 from shots.errors import BatchError
 from shots.output import atomic_write_bytes
@@ -149,6 +156,7 @@ def run_batch(
     threads: int | None = None,
     pool: ProcessRunner | None = None,
     console=None,
+    cluster_tls: ClusterTls | None = None,
 ) -> BatchSummary:
     """Render a catalog: every model of ``source`` × variants × every shot of ``preset``.
 
@@ -162,6 +170,7 @@ def run_batch(
     force : render every frame even when it is up to date.
     workers : local worker processes (default: the cores); 1 renders in this process.
     cluster : address of a Dask distributed scheduler to send the tasks to instead.
+    cluster_tls : TLS files for a ``tls://`` scheduler (``shots.batch.runner.ClusterTls``).
     quiet : no progress bars. log_json : JSON-lines event log path.
     template : frame path template (``shots.batch.layout``).
     bits : PNG bit depth, 8 or 16. exr : also write linear premultiplied EXR files.
@@ -194,7 +203,7 @@ def run_batch(
         preset=preset, layout=Layout.create(Path(out_dir), template),
         models=find_models(Path(source)), variants=variants, force=force,
         workers=workers, cluster=cluster, bits=bits, exr=exr, animations=tuple(animations),
-        fps=float(fps), threads=threads, pool=pool,
+        fps=float(fps), threads=threads, pool=pool, cluster_tls=cluster_tls,
     )
     with Reporter(quiet=quiet, log_json=Path(log_json) if log_json else None,
                   console=console) as reporter:
@@ -215,13 +224,15 @@ class Batch:
     def __init__(self, preset: Preset, layout: Layout, models: list[CatalogModel],
                  variants: str, force: bool, workers: int | None, cluster: str | None,
                  bits: int, exr: bool, animations: tuple[str, ...], fps: float,
-                 threads: int | None, pool: ProcessRunner | None = None):
+                 threads: int | None, pool: ProcessRunner | None = None,
+                 cluster_tls: ClusterTls | None = None):
         self.preset = preset
         self.layout = layout
         self.variant_choice = variants
         self.force = force
         self.workers = workers or available_cores()
         self.cluster = cluster
+        self.cluster_tls = cluster_tls
         self.bits = bits
         self.fps = fps
         self.threads = threads
@@ -335,7 +346,8 @@ class Batch:
         )
 
     def _check_consistency(self):
-        """Write the consistency report (shots.check) over the first frame of every shot."""
+        """Write the consistency report and review page (shots.check) over the first frame of
+        every shot, with the preset's [check] tolerances."""
         from shots.check import check_renders
 
         images = [
@@ -348,7 +360,8 @@ class Batch:
         images = [path for path in images if path.is_file()]
         if not images:
             return None
-        return check_renders(images, report_dir=self.layout.out_dir, measured=self.measured)
+        return check_renders(images, self.preset.check, report_dir=self.layout.out_dir,
+                             measured=self.measured)
 
     def _frame_total(self) -> int:
         per_variant = sum(self.counts.values())
@@ -362,7 +375,7 @@ class Batch:
             self.runner = self.pool
         elif self.runner is None:
             workers = max(1, min(self.workers, frames))
-            self.runner = make_runner(workers, self.cluster, self.threads)
+            self.runner = make_runner(workers, self.cluster, self.threads, self.cluster_tls)
         return self.runner
 
     def _compile_kernels(self) -> None:
@@ -375,16 +388,23 @@ class Batch:
             compile_renderer()
 
     def _inspect(self, state: ModelState) -> None:
-        """Hash the model and read its manifest; a missing file fails the model here."""
+        """Hash the model and read its manifest; a model that cannot be read fails here, alone."""
+        try:
+            self._read_inputs(state)
+        except Exception as exc:  # any surprise from one model's files fails that model alone
+            self._fail(state, f"{state.entry.listed_as}: cannot read: "
+                              f"{getattr(exc, 'strerror', None) or exc}", [])
+
+    def _read_inputs(self, state: ModelState) -> None:
         path = state.entry.path
+        if state.entry.escapes_root():
+            self._fail(state, f"{state.entry.listed_as}: a link to a file outside the catalog "
+                              f"folder {state.entry.root} (refused)", [])
+            return
         if not path.is_file():
             self._fail(state, f"{state.entry.listed_as}: no such model file", [])
             return
-        try:
-            state.file_sha256, state.inputs_sha256 = jobs.model_hashes(path)
-        except OSError as exc:
-            self._fail(state, f"{state.entry.listed_as}: cannot read: {exc.strerror}", [])
-            return
+        state.file_sha256, state.inputs_sha256 = jobs.model_hashes(path)
         old = manifest.read_manifest(self.layout.absolute(self.layout.manifest_path(state.name)))
         if old is not None and old.get("inputs_sha256") == state.inputs_sha256:
             state.old = old
@@ -436,12 +456,16 @@ class Batch:
         for variant in state.variants:
             for frame in jobs.frame_ids(self.preset, variant):
                 state.planned.append(frame)
-                path = self.layout.frame_path(state.name, variant, frame.shot, frame.index,
-                                              self.size)
-                paths[frame] = path
                 state.keys[frame] = jobs.frame_key(state.inputs_sha256, self.preset_hash,
                                                    self.version, self.bits, frame)
-        clash = self._claim(state, list(paths.values()) + self._animation_paths(state))
+        try:  # a model (or variant) named like the batch's own files fails alone
+            for frame in state.planned:
+                paths[frame] = self.layout.frame_path(state.name, frame.variant, frame.shot,
+                                                      frame.index, self.size)
+            clash = self._claim(state, list(paths.values()) + self._animation_paths(state))
+        except BatchError as exc:
+            clash = f"{state.entry.listed_as}: {exc.message}; rename the model or change " \
+                    f"--template"
         if clash:
             self._fail(state, clash, state.planned)
             return
@@ -481,13 +505,15 @@ class Batch:
         return None
 
     def _up_to_date(self, entry: dict | None, key: str, path: str) -> bool:
+        """Whether a frame can be kept: same key and path, and its file still holds the bytes
+        the manifest recorded (a file truncated or damaged since is rendered again)."""
         if entry is None or entry.get("key") != key or entry.get("path") != path:
             return False
-        if not self.layout.absolute(path).is_file():
+        if not _intact(self.layout.absolute(path), entry.get("sha256")):
             return False
         if self.exr:
             exr = entry.get("exr")
-            return bool(exr) and self.layout.absolute(exr).is_file()
+            return bool(exr) and _intact(self.layout.absolute(exr), entry.get("exr_sha256"))
         return True
 
     def _tasks(self) -> list[RenderTask]:
@@ -601,7 +627,7 @@ class Batch:
         """Use a frame's 8-bit codes now (first frames: report and contact sheet) or keep them
         for its animation, instead of decoding its PNG file later."""
         if frame.index == 0:
-            self.measured[path] = measure_codes(codes, path, Tolerances().mask_rules())
+            self.measured[path] = measure_codes(codes, path, mask_rules(self.preset.check))
             self.thumbnails[path] = thumbnail(codes, self._sheet_background())
         if frame.shot in self.animated:
             state.pictures[frame] = codes
@@ -610,7 +636,9 @@ class Batch:
         return {
             "variant": frame.variant, "shot": frame.shot, "frame": frame.index,
             "view": image.view, "path": path, "exr": exr_path, "key": state.keys[frame],
-            "seed": image.seed, "width": image.camera["width"],
+            "sha256": hashlib.sha256(image.png).hexdigest(),
+            "exr_sha256": hashlib.sha256(image.exr).hexdigest() if image.exr else None,
+            "seed": image.seed, "albedo": image.albedo, "width": image.camera["width"],
             "height": image.camera["height"], "camera": image.camera,
             "timings": {"render_s": round(image.render_seconds, 4),
                         "encode_s": round(image.encode_seconds, 4),
@@ -790,3 +818,22 @@ class Batch:
         return ModelOutcome(model=state.name, listed_as=state.entry.listed_as,
                             variants=state.variants, rendered=state.rendered,
                             skipped=state.skipped, failed=state.failed, error=state.error)
+
+
+def _intact(path: Path, sha256: str | None) -> bool:
+    """Whether ``path`` is a file whose bytes hash to ``sha256`` (a manifest from before
+    hashes were recorded: whether the image decodes whole)."""
+    if not path.is_file():
+        return False
+    try:
+        if sha256 is not None:
+            return jobs.sha256_file(path) == sha256
+        if path.suffix != ".png":
+            return True
+        from PIL import Image
+
+        with Image.open(path) as image:
+            image.verify()  # reads every chunk and checks its CRC, no pixels decoded
+        return True
+    except Exception:  # unreadable or damaged: render it again
+        return False

@@ -13,8 +13,10 @@ from collections.abc import Callable
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from contextlib import contextmanager
+from dataclasses import dataclass
 from urllib.parse import urlsplit
 
+import shots
 from shots.batch import worker
 from shots.errors import BatchError
 
@@ -121,14 +123,19 @@ class DaskRunner:
     output folder, only to the model files (at the same paths) and the Python packages.
     """
 
-    def __init__(self, address: str):
+    def __init__(self, address: str, tls: ClusterTls | None = None):
         try:
             from dask.distributed import Client
         except ImportError:
             raise BatchError("--cluster", None,
                              "needs Dask: pip install 'dask[distributed]'") from None
+        if address.startswith("tls://") and tls is None:
+            raise BatchError("--cluster", None, f"{address!r} uses TLS: give --tls-ca-file and "
+                                                "--tls-cert (and --tls-key)")
+        security = tls.security() if tls is not None else None
         try:
-            self._client = Client(address, timeout="20s", set_as_default=False)
+            self._client = Client(address, timeout="20s", set_as_default=False,
+                                  security=security)
         except (OSError, TimeoutError, ValueError) as exc:
             raise BatchError("--cluster", None, f"cannot reach the scheduler at {address!r}: "
                                                 f"{exc}") from None
@@ -144,8 +151,8 @@ class DaskRunner:
         self._finished: set = set()
 
     def submit(self, fn: Callable, *args):
-        future = self._client.submit(worker.on_dask_worker, fn, self.host_threads, *args,
-                                     pure=False)
+        future = self._client.submit(worker.on_dask_worker, fn, self.host_threads,
+                                     shots.__version__, *args, pure=False)
         self._completed.add(future)
         return future
 
@@ -158,13 +165,42 @@ class DaskRunner:
 
     def result(self, future, model: str, variant: str):
         try:
-            return future.result()
+            result = future.result()
         except Exception as exc:  # a worker lost, a task that could not be sent or unpickled
             failure = worker.Failure(WORKER_DIED, f"the cluster could not run the task: {exc}")
             return worker.TaskResult(model, variant, failure=failure)
+        problem = worker.result_problem(result, model, variant)
+        if problem is not None:  # what came back is used only once it has the expected shape
+            failure = worker.Failure("BadResult", f"{model}: the cluster sent back a malformed "
+                                                  f"result ({problem})")
+            return worker.TaskResult(model, variant, failure=failure)
+        return result
 
     def close(self) -> None:
         self._client.close()
+
+
+@dataclass(frozen=True)
+class ClusterTls:
+    """TLS files for a Dask scheduler at a ``tls://`` address (Dask's ``Security``): the CA
+    that signed the cluster's certificates, and this client's certificate and key."""
+
+    ca_file: str
+    cert: str
+    key: str | None = None
+
+    def __post_init__(self):
+        for name in ("ca_file", "cert", "key"):
+            path = getattr(self, name)
+            if path is not None and not os.path.isfile(path):
+                raise BatchError(f"--tls-{name.replace('_', '-')}", None,
+                                 f"no such file {path!r}")
+
+    def security(self):
+        from distributed.security import Security
+
+        return Security(tls_ca_file=self.ca_file, tls_client_cert=self.cert,
+                        tls_client_key=self.key, require_encryption=True)
 
 
 @contextmanager
@@ -182,10 +218,11 @@ def local_workers(workers: int | None = None, threads: int | None = None):
         runner.close()
 
 
-def make_runner(workers: int, cluster: str | None, threads: int | None = None):
+def make_runner(workers: int, cluster: str | None, threads: int | None = None,
+                tls: ClusterTls | None = None):
     """The runner for a batch: Dask when ``cluster`` names a scheduler, else local."""
     if cluster:
-        return DaskRunner(cluster)
+        return DaskRunner(cluster, tls)
     if workers <= 1:
         return InlineRunner(threads)
     return ProcessRunner(workers, threads)

@@ -53,16 +53,25 @@ def contact_sheet_bytes(rows: list[list[SheetCell]], background=CELL) -> bytes:
     for r, row in enumerate(rows):
         for c, cell in enumerate(row):
             x, y = c * cell_w + PAD, r * cell_h + PAD
-            thumb = cell.picture
-            if thumb is None:
-                thumb = thumbnail(read_rgba8(cell.image), background)
-            sheet.paste(thumb, (x + (THUMB - thumb.width) // 2, y + (THUMB - thumb.height) // 2))
+            thumb = cell.picture if cell.picture is not None else _read_thumbnail(cell.image,
+                                                                                  background)
+            if thumb is not None:  # an unreadable file leaves its cell blank, captioned
+                sheet.paste(thumb, (x + (THUMB - thumb.width) // 2,
+                                    y + (THUMB - thumb.height) // 2))
             for line, text in enumerate((cell.title, cell.subtitle)):
                 draw.text((x, y + THUMB + 2 + line * LINE_HEIGHT), _fit(draw, font, text),
                           fill=INK, font=font)
     buffer = io.BytesIO()
     sheet.save(buffer, format="PNG", optimize=False)
     return buffer.getvalue()
+
+
+def _read_thumbnail(path: Path, background) -> Image.Image | None:
+    """The thumbnail of an image file, or None when it is missing, truncated or damaged."""
+    try:
+        return thumbnail(read_rgba8(path), background)
+    except Exception:  # Pillow and pypng raise many types for a damaged file
+        return None
 
 
 def thumbnail(rgba: np.ndarray, background) -> Image.Image:

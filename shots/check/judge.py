@@ -27,8 +27,8 @@ shadow-weighted centroid is higher than the product's bounding-box centre by mor
 image (or the camera's up) is flipped. (2) For a model turned over in the scene the shadow stays
 on the floor, so the second cue is the outline's mass: furniture carries its bulk up high on thin
 legs or a stem (chairs, tables, stools, lamps), so the centroid of the product's pixels sits in the
-upper part of its box (0.28–0.47 of the height, 0 at the top, in 160 px renders of the Tavlund
-demo models; 0.59–0.69 for the ones that visibly change when turned over). A product whose mass
+upper part of its box (0.28–0.47 of the height, 0 at the top, in 160 px renders of the demo
+models; 0.59–0.69 for the ones that visibly change when turned over). A product whose mass
 position is greater than both ``mass_low`` and the catalog median plus ``mass_margin`` is
 flagged. Symmetric outlines (a box-like bookcase, a sofa, a chair seen from the side) look much
 the same either way and are not caught.
@@ -40,73 +40,63 @@ detail is below ``flat_ratio`` times the catalog median is flagged as flat colou
 the catalog median itself reaches ``flat_floor`` (the catalog is mostly textured); in a catalog of
 mostly plain lacquer and paint, a flat product is normal and the check stays off.
 
-*Exposure* compares the product's mean luminance with the catalog median in stops, so it reads
-albedo too: a black sofa in a catalog of oak will stand out.
+*Exposure* is judged on the light the product received, not on its colour. A batch traces one
+ray per pixel through the model and reads the base colour of the first surface (``shots.albedo``);
+the rendered luminance of the product's matte pixels divided by the luminance of their base
+colour plus the dielectric reflectance of 0.04 (glTF 2.0 spec, Appendix B: F0 of a dielectric)
+is the light level. Only matte surfaces count: a frame showing nothing but metal, clear-coated
+lacquer, glass or a lamp's glow has no light level and no exposure check. A light and a dark
+fabric under the same lights read alike; a doubled light reads one stop higher. An image's light
+level is compared with the catalog median (``exposure_stops``) and with the median of the same
+model's variants seen in the same shot and frame (``variant_stops``, at least three of them),
+which agree far more closely than different products do. Images without a batch record (renders
+from elsewhere) fall back on their mean luminance against the catalog median, which reads colour
+too: a black sofa stands out among oak.
+
+*White base colour.* A base colour texture lost on export leaves the material's factor, white for
+a textured material (glTF 2.0 spec §Materials: the texture is multiplied by the factor), so the
+rendered light level looks right and the product is plain white. When more than ``white_base``
+of the visible matte surface has a pure white base colour, the image is flagged.
 """
 
 from __future__ import annotations
 
-import difflib
 import math
-from collections.abc import Mapping
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 
 import numpy as np
 
+from shots.check.frames import FrameRecord
 from shots.check.measure import MaskRules, Measurement
-from shots.errors import PresetError
+from shots.presets import CheckSettings
+
+Tolerances = CheckSettings  # the preset's [check] table (shots.presets)
+DIELECTRIC_F0 = 0.04  # glTF 2.0 spec, Appendix B: specular reflectance of a dielectric at normal
+MIN_VARIANTS = 3  # images of one model, shot and frame needed to compare its variants
 
 
-@dataclass(frozen=True)
-class Tolerances:
-    """How far an image may stray before it is flagged (fractions of the frame unless said)."""
+def mask_rules(tolerances: Tolerances) -> MaskRules:
+    """The thresholds that decide product, shadow and background pixels."""
+    return MaskRules(
+        alpha_threshold=tolerances.alpha_threshold,
+        shadow_level=tolerances.shadow_level,
+        background_threshold=tolerances.background_threshold,
+        opaque_shadow_floor=tolerances.opaque_shadow_floor,
+    )
 
-    fill: float = 0.08  # |fill − catalog median fill|
-    centre_offset: float = 0.03  # |x| and |y| of the bbox centre from the frame centre
-    exposure_stops: float = 1.0  # |log2(Y / catalog median Y)|
-    purity: float = 0.99  # transparent backgrounds: least share of clean background pixels
-    border_std: float = 0.02  # opaque backgrounds: most spread of the border around its colour
-    clipped: float = 0.10  # most share of product pixels at full white
-    flat_ratio: float = 0.25  # flat colour: detail below this share of the catalog median
-    flat_floor: float = 0.01  # ... checked only when the catalog median detail reaches this
-    shadow_above: float = 0.1  # upside down: shadow centroid this many bbox heights above centre
-    mass_low: float = 0.55  # upside down: mass position (0 top, 1 bottom) beyond this
-    mass_margin: float = 0.1  # ... and this far beyond the catalog median
-    fill_spread: float = 0.04  # fill and vertical centre compared only when fills agree this well
-    min_catalog: int = 3  # images with a product needed to compare with the catalog median
-    alpha_threshold: float = MaskRules.alpha_threshold
-    shadow_level: float = MaskRules.shadow_level
-    background_threshold: float = MaskRules.background_threshold
-    opaque_shadow_floor: float = MaskRules.opaque_shadow_floor
 
-    @staticmethod
-    def from_mapping(values: Mapping[str, object], source: str = "[check]") -> Tolerances:
-        """Tolerances from a table of overrides (for example a preset's ``[check]`` table).
-
-        Raises
-        ------
-        PresetError : an unknown key or a value that is not a non-negative number.
-        """
-        known = [f.name for f in fields(Tolerances)]
-        for key, value in values.items():
-            if key not in known:
-                close = difflib.get_close_matches(key, known, n=1)
-                hint = f"; did you mean {close[0]!r}?" if close else ""
-                raise PresetError(source, key, f"unknown tolerance{hint}")
-            if isinstance(value, bool) or not isinstance(value, int | float) or value < 0:
-                raise PresetError(source, key, f"needs a non-negative number, not {value!r}")
-            if key == "min_catalog" and not isinstance(value, int):
-                raise PresetError(source, key, f"needs a whole number, not {value!r}")
-        return Tolerances(**values)
-
-    def mask_rules(self) -> MaskRules:
-        """The thresholds that decide product, shadow and background pixels."""
-        return MaskRules(
-            alpha_threshold=self.alpha_threshold,
-            shadow_level=self.shadow_level,
-            background_threshold=self.background_threshold,
-            opaque_shadow_floor=self.opaque_shadow_floor,
-        )
+def light_level(record: FrameRecord | None) -> float | None:
+    """The light the product received: rendered luminance over what its materials reflect
+    (module docstring); None without an albedo reading."""
+    if record is None or not record.albedo:
+        return None
+    try:
+        rendered, albedo = float(record.albedo["rendered"]), float(record.albedo["albedo"])
+    except (KeyError, TypeError, ValueError):
+        return None
+    if not (math.isfinite(rendered) and math.isfinite(albedo)) or albedo < 0:
+        return None
+    return max(rendered, 1e-9) / (albedo + DIELECTRIC_F0)
 
 
 @dataclass(frozen=True)
@@ -122,10 +112,13 @@ class CatalogMedians:
     detail: float | None
     mass_position: float | None
     fill_spread: float | None = None
+    light: float | None = None  # light level (``light_level``) over the images with a reading
 
 
-def catalog_medians(measurements: list[Measurement], tolerances: Tolerances) -> CatalogMedians:
-    """The catalog medians the relative checks compare against."""
+def catalog_medians(measurements: list[Measurement], tolerances: Tolerances,
+                    lights: list[float] = ()) -> CatalogMedians:
+    """The catalog medians the relative checks compare against; ``lights`` are the light levels
+    of the images that have one."""
     found = [m for m in measurements if m.found]
 
     def median(name: str) -> float | None:
@@ -142,6 +135,7 @@ def catalog_medians(measurements: list[Measurement], tolerances: Tolerances) -> 
         detail=median("detail"),
         mass_position=median("mass_position"),
         fill_spread=median_deviation(fills) if len(fills) >= tolerances.min_catalog else None,
+        light=float(np.median(lights)) if len(lights) >= tolerances.min_catalog else None,
     )
 
 
@@ -157,11 +151,34 @@ def framed_to_one_fill(medians: CatalogMedians, tolerances: Tolerances) -> bool:
     return medians.fill_spread is None or medians.fill_spread <= tolerances.fill_spread
 
 
-def exposure_stops(m: Measurement, medians: CatalogMedians) -> float | None:
-    """The product's mean luminance relative to the catalog median, in stops (log2)."""
-    if m.luminance is None or not medians.luminance:
+def stops(value: float | None, reference: float | None) -> float | None:
+    """``value`` relative to ``reference`` in stops (log2); None when either is missing."""
+    if value is None or not reference:
         return None
-    return math.log2(max(m.luminance, 1e-6) / medians.luminance)
+    return math.log2(max(value, 1e-9) / reference)
+
+
+def exposure_stops(m: Measurement, record: FrameRecord | None,
+                   medians: CatalogMedians) -> float | None:
+    """The image's exposure against the catalog in stops: a batch's frame by its light level
+    against the median light level (None when nothing matte showed), any other image by its
+    mean luminance against the median luminance."""
+    if record is not None:
+        return stops(light_level(record), medians.light)
+    if m.luminance is None:
+        return None
+    return stops(m.luminance, medians.luminance)
+
+
+def variant_medians(records: dict, tolerances: Tolerances) -> dict[tuple, float]:
+    """Median light level of each (model, shot, frame) seen in at least ``MIN_VARIANTS``
+    images (its variants), from ``records`` {image: FrameRecord}."""
+    groups: dict[tuple, list[float]] = {}
+    for record in records.values():
+        light = light_level(record)
+        if light is not None:
+            groups.setdefault((record.model, record.shot, record.frame), []).append(light)
+    return {key: float(np.median(v)) for key, v in groups.items() if len(v) >= MIN_VARIANTS}
 
 
 def catalog_notes(medians: CatalogMedians, tolerances: Tolerances) -> list[str]:
@@ -187,8 +204,13 @@ def catalog_notes(medians: CatalogMedians, tolerances: Tolerances) -> list[str]:
     return notes
 
 
-def reasons_for(m: Measurement, medians: CatalogMedians, tolerances: Tolerances) -> list[str]:
-    """Every reason to look at this image again; empty when it is consistent."""
+def reasons_for(m: Measurement, medians: CatalogMedians, tolerances: Tolerances,
+                record: FrameRecord | None = None,
+                variant_median: float | None = None) -> list[str]:
+    """Every reason to look at this image again; empty when it is consistent.
+
+    ``record`` is the image's frame record, ``variant_median`` the median light level of its
+    model's variants in the same shot and frame (``variant_medians``)."""
     if not m.found:
         if m.transparent:
             return ["no product found (the image is empty or all background)"]
@@ -220,12 +242,7 @@ def reasons_for(m: Measurement, medians: CatalogMedians, tolerances: Tolerances)
             f"check the model's pivot and up axis (a part below the floor does not show) or "
             f"the framing"
         )
-    stops = exposure_stops(m, medians)
-    if stops is not None and abs(stops) > t.exposure_stops:
-        reasons.append(
-            f"exposure {stops:+.1f} stops from the catalog (±{t.exposure_stops:g}): check the "
-            f"materials (a missing texture renders its plain base colour)"
-        )
+    reasons += exposure_reasons(m, record, medians, variant_median, t)
     if m.clipped > t.clipped:
         reasons.append(f"{m.clipped:.0%} of the product at full white (limit {t.clipped:.0%})")
     if m.background_purity is not None and m.background_purity < t.purity:
@@ -242,6 +259,39 @@ def reasons_for(m: Measurement, medians: CatalogMedians, tolerances: Tolerances)
         reasons.append(
             f"flat colour (detail {m.detail:.4f} vs catalog {medians.detail:.4f}): possible "
             f"missing texture"
+        )
+    return reasons
+
+
+def exposure_reasons(m: Measurement, record: FrameRecord | None, medians: CatalogMedians,
+                     variant_median: float | None, t: Tolerances) -> list[str]:
+    """Exposure against the catalog and against the model's variants, and a white base colour
+    (module docstring)."""
+    reasons = []
+    light = light_level(record)
+    catalog = exposure_stops(m, record, medians)
+    if catalog is not None and abs(catalog) > t.exposure_stops:
+        if light is not None:
+            reasons.append(
+                f"light on the product {catalog:+.1f} stops from the catalog "
+                f"(±{t.exposure_stops:g}): check the lights and the exposure of this render"
+            )
+        else:
+            reasons.append(
+                f"exposure {catalog:+.1f} stops from the catalog (±{t.exposure_stops:g}): check "
+                f"the materials (a missing texture renders its plain base colour)"
+            )
+    among_variants = stops(light, variant_median)
+    if among_variants is not None and abs(among_variants) > t.variant_stops:
+        reasons.append(
+            f"light on the product {among_variants:+.1f} stops from its other variants "
+            f"(±{t.variant_stops:g}): the variants were not lit alike"
+        )
+    white = (record.albedo or {}).get("white") if record is not None else None
+    if isinstance(white, int | float) and white > t.white_base:
+        reasons.append(
+            f"base colour pure white on {white:.0%} of the visible surface (limit "
+            f"{t.white_base:.0%}): a base colour texture missing?"
         )
     return reasons
 

@@ -26,17 +26,17 @@ renders for exact masks. A visible floor or sweep is read as product in both mod
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 from PIL import Image, UnidentifiedImageError
 
-from shots.colour import srgb_to_linear
+from shots.colour import LUMA_709, srgb_to_linear
+from shots.limits import DEFAULT
 
 OFF_TINT = 0.02  # opaque: a shadow pixel is this close to a multiple of the background colour
-# BT.709 luminance weights of linear RGB (ITU-R BT.709-6, item 3.2)
-LUMA_709 = np.array([0.2126, 0.7152, 0.0722])
 
 
 @dataclass(frozen=True)
@@ -111,24 +111,33 @@ class Measurement:
         return top == 0 or left == 0 or bottom == self.height or right == self.width
 
 
-def read_rgba(path: Path) -> np.ndarray:
+def read_rgba(path: Path, max_pixels: int = DEFAULT.image_pixels) -> np.ndarray:
     """(h, w, 4) float64 straight-alpha RGBA in [0, 1] (alpha 1 for images without alpha).
 
     Raises
     ------
-    OSError or ValueError when the file is not a readable image.
+    OSError or ValueError when the file is not a readable image, or its header declares more
+    than ``max_pixels`` (checked before decoding: a small PNG can declare 10000 × 10000).
     """
     try:
-        with Image.open(path) as image:
+        with warnings.catch_warnings():  # Pillow's own bomb warning: our limit decides
+            warnings.simplefilter("ignore", Image.DecompressionBombWarning)
+            image = Image.open(path)
+        with image:
+            width, height = image.size
+            if width * height > max_pixels:
+                raise ValueError(f"the image is {width}x{height}, over the limit image_pixels "
+                                 f"{max_pixels}")
             rgba = np.asarray(image.convert("RGBA"), np.float64) / 255.0
-    except UnidentifiedImageError as exc:
+    except (UnidentifiedImageError, Image.DecompressionBombError) as exc:
         raise ValueError(str(exc)) from None
     return rgba
 
 
-def measure_image(path: Path, rules: MaskRules | None = None) -> Measurement:
+def measure_image(path: Path, rules: MaskRules | None = None,
+                  max_pixels: int = DEFAULT.image_pixels) -> Measurement:
     """Read ``path`` and measure it (see ``measure_rgba``)."""
-    return measure_rgba(read_rgba(path), Path(path), rules)
+    return measure_rgba(read_rgba(path, max_pixels), Path(path), rules)
 
 
 def measure_codes(codes: np.ndarray, path: Path, rules: MaskRules | None = None) -> Measurement:

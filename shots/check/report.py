@@ -1,7 +1,8 @@
 """The consistency report: its data, and its two renderings (Markdown for people, JSON for tools).
 
 report.md embeds every image as a relative link next to its numbers, flagged rows marked;
-report.json carries the same numbers, the medians and the tolerances used.
+report.json carries the same numbers, the medians and the tolerances used. The review page
+(``shots.check.review``) is a third rendering of the same data.
 """
 
 from __future__ import annotations
@@ -9,15 +10,34 @@ from __future__ import annotations
 import json
 import math
 import os
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from urllib.parse import quote
 
+from shots.check.frames import FrameRecord
 from shots.check.judge import CatalogMedians, Tolerances
 from shots.check.measure import Measurement
 
 FLAG_MARK = "⚠ flagged"
-REPORT_VERSION = 1
+REPORT_VERSION = 2
+
+
+@dataclass(frozen=True)
+class BaselineCheck:
+    """An image against its approved image (``shots.check.baseline``).
+
+    approved : the approved image's path relative to the report folder, None when there is none.
+    ssim, changed_share, largest_delta_e : the comparison (``shots.check.compare``), None when
+        there was nothing to compare. difference : the difference picture's path relative to the
+        report folder, for flagged images. note : why nothing was compared, if so.
+    """
+
+    approved: str | None
+    ssim: float | None = None
+    changed_share: float | None = None
+    largest_delta_e: float | None = None
+    difference: str | None = None
+    note: str = ""
 
 
 @dataclass(frozen=True)
@@ -28,8 +48,12 @@ class ImageCheck:
     ----------
     path : the image file. name : its path relative to the report folder (POSIX separators).
     measurement : the numbers, or None when the file could not be read.
-    exposure_stops : mean luminance relative to the catalog median (None without a median).
+    exposure_stops : light level (or, without an albedo reading, mean luminance) relative to
+        the catalog median (None without a median).
     reasons : why it was flagged; empty when it is consistent with the catalog.
+    record : the frame as its batch recorded it (model, variant, shot, frame), if known.
+    variant_stops : light level relative to the model's variants in the same shot and frame.
+    baseline : the comparison with the approved image, when one was asked for.
     """
 
     path: Path
@@ -37,6 +61,9 @@ class ImageCheck:
     measurement: Measurement | None
     exposure_stops: float | None
     reasons: tuple[str, ...]
+    record: FrameRecord | None = None
+    variant_stops: float | None = None
+    baseline: BaselineCheck | None = None
 
     @property
     def flagged(self) -> bool:
@@ -60,8 +87,14 @@ class CheckReport:
     medians: CatalogMedians
     tolerances: Tolerances
     notes: tuple[str, ...] = ()
+    against: Path | None = None  # the folder of approved images, when compared
     markdown_path: Path | None = field(default=None, compare=False)
     json_path: Path | None = field(default=None, compare=False)
+    review_path: Path | None = field(default=None, compare=False)
+
+    def written(self, markdown: Path, json_file: Path, review: Path) -> CheckReport:
+        """The same report, knowing where its files are."""
+        return replace(self, markdown_path=markdown, json_path=json_file, review_path=review)
 
     @property
     def flagged(self) -> list[tuple[Path, list[str]]]:
@@ -78,12 +111,13 @@ def report_json(report: CheckReport) -> str:
         "version": REPORT_VERSION,
         "images_checked": len(report.images),
         "images_flagged": sum(image.flagged for image in report.images),
-        "tolerances": asdict(report.tolerances),
+        "tolerances": report.tolerances.model_dump(),
         "catalog_medians": asdict(report.medians),
         "notes": list(report.notes),
+        "approved_folder": str(report.against) if report.against else None,
         "images": [image_entry(image) for image in report.images],
     }
-    return json.dumps(_finite(document), indent=2, ensure_ascii=False) + "\n"
+    return json.dumps(finite_or_null(document), indent=2, ensure_ascii=False) + "\n"
 
 
 def image_entry(image: ImageCheck) -> dict:
@@ -94,22 +128,25 @@ def image_entry(image: ImageCheck) -> dict:
         del metrics["path"]
         metrics["touches_edge"] = image.measurement.touches_edge
         metrics["exposure_stops"] = image.exposure_stops
+        metrics["variant_stops"] = image.variant_stops
     return {
         "file": image.name,
+        "frame": asdict(image.record) if image.record else None,
         "flagged": image.flagged,
         "reasons": list(image.reasons),
         "metrics": metrics,
+        "baseline": asdict(image.baseline) if image.baseline else None,
     }
 
 
-def _finite(value):
+def finite_or_null(value):
     """JSON has no NaN or infinity: such numbers become null; tuples become lists."""
     if isinstance(value, float):
         return value if math.isfinite(value) else None
     if isinstance(value, dict):
-        return {key: _finite(item) for key, item in value.items()}
+        return {key: finite_or_null(item) for key, item in value.items()}
     if isinstance(value, list | tuple):
-        return [_finite(item) for item in value]
+        return [finite_or_null(item) for item in value]
     return value
 
 
@@ -129,15 +166,21 @@ def report_markdown(report: CheckReport) -> str:
         f"{len(report.images)} images checked, {len(flagged)} flagged.",
         "",
         f"Catalog medians over {m.count} images with a product: fill {_num(m.fill, 2)}, "
-        f"luminance Y {_num(m.luminance, 3)}, detail {_num(m.detail, 4)}, "
+        f"luminance Y {_num(m.luminance, 3)}, light level {_num(m.light, 3)}, "
+        f"detail {_num(m.detail, 4)}, "
         f"mass position {_num(m.mass_position, 2)}.",
         "",
         f"Limits: fill ±{t.fill:g} of the median and vertical centre offset ≤ "
         f"{t.centre_offset:g} when the fills agree (median deviation ≤ {t.fill_spread:g}), "
-        f"horizontal centre offset ≤ {t.centre_offset:g}, exposure "
-        f"±{t.exposure_stops:g} stop(s), background purity ≥ {t.purity:g} (transparent) or border "
+        f"horizontal centre offset ≤ {t.centre_offset:g}, light on the product "
+        f"±{t.exposure_stops:g} stop(s) from the catalog and ±{t.variant_stops:g} from its "
+        f"variants, background purity ≥ {t.purity:g} (transparent) or border "
         f"spread ≤ {t.border_std:g} (opaque), clipped ≤ {t.clipped:.0%}.",
     ]
+    if report.against is not None:
+        lines += ["", f"Compared with the approved images in {report.against}: SSIM ≥ "
+                      f"{t.ssim:g}, at most {t.changed_share:.1%} of the frame beyond ΔE00 "
+                      f"{t.delta_e:g}."]
     if report.notes:
         lines += ["", "## Notes", ""] + [f"- {note}" for note in report.notes]
     if flagged:

@@ -20,6 +20,7 @@ from shots.gltf.container import Document, read_document
 from shots.gltf.geometry import GeometryBuilder, scene_roots
 from shots.gltf.materials import MATERIAL_EXTENSIONS, MaterialBuilder
 from shots.gltf.textures import TextureAtlas
+from shots.limits import DEFAULT, Limits
 from shots.scene import Scene
 
 __all__ = ["load_scene", "SUPPORTED_EXTENSIONS", "GltfError"]
@@ -32,15 +33,16 @@ SUPPORTED_EXTENSIONS = frozenset(
 
 
 def load_scene(path: str | os.PathLike, scene: int | str | None = None,
-               max_triangles: int = 20_000_000, max_texture_pixels: int = 268_435_456) -> Scene:
+               max_triangles: int | None = None, max_texture_pixels: int | None = None,
+               limits: Limits = DEFAULT) -> Scene:
     """Load a glTF 2.0 model (.gltf with external files or data: URIs, or .glb).
 
     Parameters
     ----------
     path : the model file; GLB is recognised by its magic number, not its extension.
     scene : index or name of the scene to render; default the file's ``scene``, else scenes[0].
-    max_triangles : refuse models drawing more triangles (all node instances counted).
-    max_texture_pixels : refuse models whose textures hold more pixels in total.
+    max_triangles, max_texture_pixels : shortcuts overriding those two ``limits``.
+    limits : the budgets (``shots.limits``), each checked before the memory is taken.
 
     Returns
     -------
@@ -50,11 +52,13 @@ def load_scene(path: str | os.PathLike, scene: int | str | None = None,
     ------
     GltfError for any malformed, hostile or unsupported input, naming the JSON field.
     """
-    doc = read_document(path)
+    overrides = {"triangles": max_triangles, "texture_pixels": max_texture_pixels}
+    limits = limits.model_copy(update={k: v for k, v in overrides.items() if v is not None})
+    doc = read_document(path, limits)
     try:
         # NaN/Inf in hostile data are handled explicitly (dropped or replaced), not warned about
         with np.errstate(all="ignore"):
-            return _build(doc, scene, max_triangles, max_texture_pixels)
+            return _build(doc, scene, limits)
     except GltfError:
         raise
     except MemoryError:
@@ -63,14 +67,15 @@ def load_scene(path: str | os.PathLike, scene: int | str | None = None,
         raise doc.error(None, "structure nested too deeply") from None
 
 
-def _build(doc: Document, choice, max_triangles: int, max_texture_pixels: int) -> Scene:
+def _build(doc: Document, choice, limits: Limits) -> Scene:
     _check_extensions(doc)
     doc.variant_names = _variant_names(doc)
-    atlas = TextureAtlas(doc, max_texture_pixels)
+    atlas = TextureAtlas(doc, limits.texture_pixels, limits.texture_bytes)
     materials = MaterialBuilder(doc, atlas)
-    reader = AccessorReader(doc, max_elements=4 * max_triangles + 1024)
+    reader = AccessorReader(doc, max_elements=4 * limits.triangles + 1024)
     builder = GeometryBuilder(doc, reader, materials.count, materials.normal_map_texcoord,
-                              max_triangles, draco.decode_primitive if draco.AVAILABLE else None)
+                              limits.triangles, draco.decode_primitive if draco.AVAILABLE else None,
+                              max_instances=limits.instances)
     roots = scene_roots(doc, choice)
     nodes = builder.add_scene(roots)
     builder.warn_dropped()
@@ -96,7 +101,8 @@ def _build(doc: Document, choice, max_triangles: int, max_texture_pixels: int) -
 
 
 def _check_extensions(doc: Document) -> None:
-    """Refuse required extensions we do not implement (checklist L20); note the ignored ones."""
+    """Refuse required extensions we do not implement, note the ignored ones (glTF 2.0 spec
+    §Specifying Extensions)."""
     src, gltf = doc.source, doc.gltf
     required = checks.array(gltf.extensionsRequired, src, "extensionsRequired")
     for k, name in enumerate(required):
@@ -120,8 +126,24 @@ def _variant_names(doc: Document) -> list[str]:
     for k, item in enumerate(checks.array(ext.get("variants"), src,
                                           "extensions.KHR_materials_variants.variants")):
         item = checks.mapping(item, src, f"extensions.KHR_materials_variants.variants[{k}]")
-        name = str(item.get("name") or f"variant {k}")
-        while name in names:
-            name += "'"
-        names.append(name)
-    return names
+        names.append(str(item.get("name") or f"variant {k}"))
+    return unique_names(names)
+
+
+def unique_names(names: list[str]) -> list[str]:
+    """``names`` with repeats made unique by a ``#2``, ``#3``... suffix, in linear time."""
+    taken = set(names)
+    seen: dict[str, int] = {}
+    out = []
+    for name in names:
+        if name in seen:
+            number = seen[name]
+            while f"{name} #{number}" in taken:
+                number += 1
+            seen[name] = number + 1
+            name = f"{name} #{number}"
+            taken.add(name)
+        else:
+            seen[name] = 2
+        out.append(name)
+    return out

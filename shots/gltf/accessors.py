@@ -11,7 +11,7 @@ import numpy as np
 from shots.gltf import checks
 from shots.gltf.container import Document
 
-# Spec §Accessors, checklist L7 (little-endian)
+# glTF 2.0 spec §Accessor Data Types; all binary data is little-endian (§Binary Data Storage)
 COMPONENT_DTYPES = {
     5120: np.dtype("<i1"),
     5121: np.dtype("<u1"),
@@ -84,7 +84,7 @@ class AccessorReader:
             return data
         if not acc.normalized:
             return data.astype(np.float32)  # KHR_mesh_quantization allows plain ints
-        # checklist L8 (Spec §Animations, KHR_mesh_quantization): signed max(c/M, -1), unsigned c/M
+        # glTF 2.0 spec §Animations (normalized integers), KHR_mesh_quantization: max(c/M, -1), c/M
         scale = float(np.iinfo(COMPONENT_DTYPES[ctype]).max)
         out = data.astype(np.float32) / np.float32(scale)
         if ctype in (5120, 5122):
@@ -127,7 +127,8 @@ class AccessorReader:
 
     def _strided(self, view_index, offset: int, count: int, width: int, dtype: np.dtype,
                  where: str) -> np.ndarray:
-        """A (count, width) view onto a bufferView, checked to lie inside it (checklist L9)."""
+        """A (count, width) view onto a bufferView, checked to lie inside it (glTF 2.0 spec
+        §Data Alignment)."""
         view, stride = self.doc.buffer_view(view_index, where + ".bufferView")
         element = width * dtype.itemsize
         if stride and stride < element:
@@ -145,7 +146,7 @@ class AccessorReader:
                           strides=(stride, dtype.itemsize))
 
     def _apply_sparse(self, i: int, dense: np.ndarray) -> np.ndarray:
-        """Overwrite the sparse elements (Spec §Sparse Accessors, checklist L10)."""
+        """Overwrite the sparse elements (glTF 2.0 spec §Sparse Accessors)."""
         doc, src, where = self.doc, self.doc.source, f"accessors[{i}].sparse"
         sparse = self.doc.gltf.accessors[i].sparse
         count = dense.shape[0]

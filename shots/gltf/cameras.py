@@ -14,7 +14,7 @@ LIGHT_KINDS = ("directional", "point", "spot")
 
 
 def file_cameras(doc: Document, nodes: list[tuple[int, np.ndarray]]) -> tuple[FileCamera, ...]:
-    """One FileCamera per node of the scene that carries a camera (checklist L5, L25)."""
+    """One FileCamera per node of the scene that carries a camera (glTF 2.0 spec §Cameras)."""
     gltf, src = doc.gltf, doc.source
     out = []
     for node_index, world in nodes:
@@ -56,7 +56,7 @@ def file_cameras(doc: Document, nodes: list[tuple[int, np.ndarray]]) -> tuple[Fi
 
 
 def file_lights(doc: Document, nodes: list[tuple[int, np.ndarray]]) -> tuple[FileLight, ...]:
-    """KHR_lights_punctual lights placed by the scene's nodes (checklist P1, P4)."""
+    """KHR_lights_punctual lights placed by the scene's nodes (KHR_lights_punctual README)."""
     gltf, src = doc.gltf, doc.source
     root = checks.mapping(gltf.extensions, src, "extensions")
     ext = checks.mapping(root.get("KHR_lights_punctual"), src,

@@ -1,9 +1,9 @@
 """Reading a model's bytes: GLB or JSON container, buffers, bufferViews and URIs.
 
-Security policy (ours, not the spec's; checklist L17): data comes only from the file itself, its
-GLB binary chunk, base64 ``data:`` URIs, or regular files whose real path lies inside the model's
-folder. Network and ``file:`` URIs, absolute paths and anything escaping the folder (``..``,
-symlinks) are refused before a byte is read.
+Security policy (ours; the glTF 2.0 spec, §URIs, leaves it to the loader): data comes only from
+the file itself, its GLB binary chunk, base64 ``data:`` URIs, or regular files whose real path lies
+inside the model's folder. Network and ``file:`` URIs, absolute paths and anything escaping the
+folder (``..``, symlinks) are refused before a byte is read.
 """
 
 from __future__ import annotations
@@ -22,12 +22,12 @@ import pygltflib
 
 from shots.errors import GltfError
 from shots.gltf import checks
+from shots.limits import DEFAULT, Limits
 
 GLB_MAGIC = 0x46546C67  # "glTF", Spec §GLB File Format
 CHUNK_JSON = 0x4E4F534A
 CHUNK_BIN = 0x004E4942
 BUFFER_MEDIA_TYPES = ("application/octet-stream", "application/gltf-buffer", "")
-MAX_EXTERNAL_FILE = 1 << 31  # bytes; a larger image or buffer file is refused
 
 
 @dataclass
@@ -43,6 +43,7 @@ class Document:
     gltf: pygltflib.GLTF2
     bin_chunk: memoryview | None = None
     warnings: list[str] = field(default_factory=list)
+    max_file_bytes: int = DEFAULT.file_bytes  # the model file and each file it references
     variant_names: list[str] = field(default_factory=list)  # KHR_materials_variants
     _buffers: dict[int, memoryview] = field(default_factory=dict)
     _views: dict[int, tuple[memoryview, int]] = field(default_factory=dict)
@@ -108,13 +109,13 @@ class Document:
         """Bytes behind a URI: a ``data:`` URI or a file inside the model's folder."""
         if uri.startswith("data:"):
             return self._decode_data_uri(uri, json_path, media_types)
-        if "\x00" in uri:
-            raise self.error(json_path, "URI contains a NUL character")
         parts = urlsplit(uri)
         if parts.scheme or parts.netloc:
             raise self.error(json_path, f"refusing non-local URI {uri!r:.80} (only relative "
                                         "paths and data: URIs are read)")
         relative = unquote(uri)  # Spec §URIs: relative paths are percent-encoded
+        if "\x00" in relative:  # checked once decoded: %00 is a NUL too
+            raise self.error(json_path, "URI contains a NUL character")
         if relative.startswith(("/", "\\")) or os.path.isabs(relative):
             raise self.error(json_path, f"refusing absolute path {relative!r:.80}")
         folder = os.path.realpath(self.folder)
@@ -124,8 +125,9 @@ class Document:
         if not os.path.isfile(target):
             raise self.error(json_path, f"file {relative!r:.80} not found next to the model")
         size = os.path.getsize(target)
-        if size > MAX_EXTERNAL_FILE:
-            raise self.error(json_path, f"file {relative!r:.80} is too large ({size} bytes)")
+        if size > self.max_file_bytes:
+            raise self.error(json_path, f"file {relative!r:.80} is too large ({size} bytes; "
+                                        f"limit file_mb {self.max_file_bytes >> 20})")
         try:
             with open(target, "rb") as f:
                 return f.read() if min_size is None else f.read(min_size)
@@ -149,26 +151,33 @@ class Document:
             raise self.error(json_path, f"bad base64 in data: URI ({exc})") from None
 
 
-def read_document(path: str | os.PathLike) -> Document:
-    """Open a .gltf or .glb file (GLB detected by its magic number, checklist L18).
+def read_document(path: str | os.PathLike, limits: Limits = DEFAULT) -> Document:
+    """Open a .gltf or .glb file (GLB detected by its magic number, glTF 2.0 spec §GLB File Format).
 
     Raises
     ------
-    GltfError for an unreadable file, a malformed container or JSON that is not a glTF document.
+    GltfError for an unreadable file, a malformed container, JSON that is not a glTF document,
+    or a file over the ``file_mb`` or ``json_values`` budgets (checked before reading or parsing).
     """
     path = Path(path)
     source = str(path)
     try:
+        size = path.stat().st_size
+        if size > limits.file_bytes:
+            raise GltfError(source, None, f"the file has {size} bytes, over the limit file_mb "
+                                          f"{limits.file_mb}")
         data = path.read_bytes()
-    except OSError as exc:
-        raise GltfError(source, None, f"cannot read file: {exc.strerror or exc}") from None
+    except (OSError, ValueError) as exc:  # ValueError: a NUL in the path
+        reason = getattr(exc, "strerror", None) or exc
+        raise GltfError(source, None, f"cannot read file: {reason}") from None
     bin_chunk = None
     if len(data) >= 4 and struct.unpack_from("<I", data)[0] == GLB_MAGIC:
         json_bytes, bin_chunk, notes = _split_glb(memoryview(data), source)
     else:
         json_bytes, notes = data, []
-    gltf = _parse_json(json_bytes, source)
-    doc = Document(source=source, folder=path.parent, gltf=gltf, bin_chunk=bin_chunk)
+    gltf = _parse_json(json_bytes, source, limits.json_values)
+    doc = Document(source=source, folder=path.parent, gltf=gltf, bin_chunk=bin_chunk,
+                   max_file_bytes=limits.file_bytes)
     doc.warnings.extend(notes)
     return doc
 
@@ -215,8 +224,23 @@ def _reject_constant(name: str):
     raise ValueError(f"{name} is not valid JSON")
 
 
-def _parse_json(raw: bytes, source: str) -> pygltflib.GLTF2:
+def json_value_bound(raw: bytes) -> int:
+    """An upper bound on the values a JSON text holds, found without parsing it.
+
+    Every value but the first follows a ``,`` or opens after ``[`` or ``:``; counting ``,``,
+    ``[`` and ``{`` bounds them (strings may hold these bytes too, so it is an over-count;
+    base64 payloads hold none). Parsing 60 MB of tiny values takes gigabytes of objects.
+    """
+    return raw.count(b",") + raw.count(b"[") + raw.count(b"{") + 1
+
+
+def _parse_json(raw: bytes, source: str,
+                max_values: int = DEFAULT.json_values) -> pygltflib.GLTF2:
     """The pygltflib model of a JSON document; any parse failure becomes a GltfError."""
+    values = json_value_bound(raw)
+    if values > max_values:
+        raise GltfError(source, None, f"the JSON holds up to {values} values, over the limit "
+                                      f"json_values {max_values} (large extras?)")
     try:
         text = raw.decode("utf-8-sig")
         tree = json.loads(text, parse_constant=_reject_constant)

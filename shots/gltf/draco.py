@@ -1,4 +1,4 @@
-"""KHR_draco_mesh_compression through PyPI ``DracoPy`` (optional; checklist L22).
+"""KHR_draco_mesh_compression (its README) through PyPI ``DracoPy`` (optional).
 
 The primitive's accessors have no bufferView; the compressed bufferView decodes to positions,
 normals, texture coordinates and colours, which we hand to the accessor reader as overrides so
@@ -27,6 +27,11 @@ def decode_primitive(doc: Document, reader: AccessorReader, prim, where: str) ->
     src, here = doc.source, f"{where}.extensions.{EXTENSION}"
     ext = checks.mapping(prim.extensions[EXTENSION], src, here)
     view, _ = doc.buffer_view(ext.get("bufferView"), here + ".bufferView")
+    declared = declared_size(bytes(view[:64]))
+    if declared is not None and 3 * max(declared) > reader.max_elements:
+        faces, points = declared
+        raise doc.error(here + ".bufferView", f"the Draco header declares {faces} faces and "
+                                              f"{points} points, over the loader's limit")
     try:
         mesh = DracoPy.decode(bytes(view))
     except Exception as exc:  # DracoPy raises its own and generic errors on corrupt data
@@ -51,6 +56,37 @@ def decode_primitive(doc: Document, reader: AccessorReader, prim, where: str) ->
         acc = doc.gltf.accessors[prim.indices]
         dtype = {5121: np.uint8, 5123: np.uint16}.get(acc.componentType, np.uint32)
         reader.overrides[prim.indices] = faces.reshape(-1, 1).astype(dtype)
+
+
+def declared_size(head: bytes) -> tuple[int, int] | None:
+    """(faces, points) a Draco 2.2 mesh declares in its header, read before decoding; None when
+    the layout is another (point cloud, older version, metadata first).
+
+    Draco bitstream 2.2: "DRACO", major, minor, encoder type (1 = mesh), method (0 =
+    sequential, 1 = Edgebreaker), 16-bit flags; then the sequential connectivity header holds
+    varint num_faces, num_points, and the Edgebreaker one a traversal-type byte, varint
+    num_encoded_vertices, num_faces.
+    """
+    if len(head) < 11 or head[:5] != b"DRACO" or head[5:7] != b"\x02\x02" or head[7] != 1:
+        return None
+    method, flags = head[8], int.from_bytes(head[9:11], "little")
+    if flags & 0x8000 or method not in (0, 1):  # metadata comes first: not read here
+        return None
+    position = 11 if method == 0 else 12
+    values = []
+    for _ in range(2):
+        value, shift = 0, 0
+        while True:
+            if position >= len(head) or shift > 35:
+                return None
+            byte = head[position]
+            position += 1
+            value |= (byte & 0x7F) << shift
+            shift += 7
+            if not byte & 0x80:
+                break
+        values.append(value)
+    return (values[0], values[1]) if method == 0 else (values[1], values[0])
 
 
 def _attribute(mesh, unique_id: int, name: str) -> np.ndarray | None:

@@ -39,7 +39,8 @@ class Piece:
 # ---------------------------------------------------------------- scene graph --------------
 
 def scene_roots(doc: Document, choice: int | str | None) -> list[int]:
-    """Root nodes of the chosen scene: by index or name, else ``scene``, else scenes[0] (L1)."""
+    """Root nodes of the chosen scene: by index or name, else ``scene``, else scenes[0] (glTF 2.0
+    spec §Scenes leaves that last choice open)."""
     gltf, src = doc.gltf, doc.source
     scenes = gltf.scenes or []
     if not scenes:
@@ -90,7 +91,7 @@ def world_transforms(doc: Document, roots: list[int]) -> list[tuple[int, np.ndar
 
 
 def local_matrix(doc: Document, i: int) -> np.ndarray:
-    """(4, 4) float64 local transform of node ``i`` (Spec §Transformations, checklist L2, L3)."""
+    """(4, 4) float64 local transform of node ``i`` (glTF 2.0 spec §Transformations)."""
     node, src, where = doc.gltf.nodes[i], doc.source, f"nodes[{i}]"
     if node.matrix is not None:
         m = checks.numbers(node.matrix, 16, src, where + ".matrix")
@@ -105,7 +106,8 @@ def local_matrix(doc: Document, i: int) -> np.ndarray:
 
 
 def quaternion_matrix(q: list[float], doc: Document, where: str) -> np.ndarray:
-    """(3, 3) rotation of the unit quaternion ``q`` = (x, y, z, w), w the scalar (L3)."""
+    """(3, 3) rotation of the unit quaternion ``q`` = (x, y, z, w), w the scalar (glTF 2.0 spec
+    §Transformations)."""
     x, y, z, w = q
     norm = np.sqrt(x * x + y * y + z * z + w * w)
     if not norm > 1e-12:
@@ -121,9 +123,10 @@ def quaternion_matrix(q: list[float], doc: Document, where: str) -> np.ndarray:
 # ---------------------------------------------------------------- primitives ---------------
 
 def triangulate(order: np.ndarray, mode: int) -> np.ndarray:
-    """(k, 3) int32 triangles from a vertex order and a triangle mode (checklist L13).
+    """(k, 3) int32 triangles from a vertex order and a mode (glTF 2.0 spec §Meshes, ``mode``).
 
-    Strip triangle i = (v_i, v_{i+1+i%2}, v_{i+2-i%2}); fan triangle i = (v_{i+1}, v_{i+2}, v_0).
+    Vertex order as in the Vulkan specification, "Primitive Topologies": strip triangle
+    i = (v_i, v_{i+1+i%2}, v_{i+2-i%2}); fan triangle i = (v_{i+1}, v_{i+2}, v_0).
     ``order`` values must already be checked to lie below 2**31.
     """
     n = order.shape[0]
@@ -151,12 +154,13 @@ class GeometryBuilder:
 
     def __init__(self, doc: Document, reader: AccessorReader, material_count: int,
                  needs_tangents: Callable[[int], int | None], max_triangles: int,
-                 draco: Callable | None = None):
+                 draco: Callable | None = None, max_instances: int = 1 << 62):
         self.doc = doc
         self.reader = reader
         self.material_count = material_count
         self.needs_tangents = needs_tangents
         self.max_triangles = max_triangles
+        self.max_instances = max_instances
         self.draco = draco
         self.pieces: list[Piece] = []
         self.total_triangles = 0
@@ -170,6 +174,7 @@ class GeometryBuilder:
         """Add every mesh instance under ``roots``; returns the nodes with world matrices."""
         gltf, src = self.doc.gltf, self.doc.source
         nodes = world_transforms(self.doc, roots)
+        self._check_declared_size(nodes)
         for node_index, world in nodes:
             mesh = gltf.nodes[node_index].mesh
             if mesh is None:
@@ -181,6 +186,34 @@ class GeometryBuilder:
             for p in range(len(prims)):
                 self._add_primitive(m, p, world, node_index)
         return nodes
+
+    def _check_declared_size(self, nodes: list[tuple[int, np.ndarray]]) -> None:
+        """Refuse a scene over the triangle or instance budget before building any of it.
+
+        Triangles are counted from the declared ``count`` of each primitive's indices (or
+        POSITION) accessor and its mode (Spec §Meshes), once per node instance; a malformed
+        primitive counts 0 here and is reported by the full pass.
+        """
+        gltf = self.doc.gltf
+        per_mesh: dict[int, tuple[int, int, str]] = {}
+        triangles = instances = 0
+        for node_index, _ in nodes:
+            m = gltf.nodes[node_index].mesh
+            if not (isinstance(m, int) and 0 <= m < len(gltf.meshes or ())):
+                continue
+            if m not in per_mesh:
+                per_mesh[m] = _declared_mesh_size(gltf, m)
+            drawn, prims, biggest = per_mesh[m]
+            triangles += drawn
+            instances += prims
+            if triangles > self.max_triangles:
+                where = biggest if drawn > self.max_triangles else f"nodes[{node_index}]"
+                raise self.doc.error(where, f"the scene declares {triangles} triangles or more, "
+                                            f"over the limit triangles {self.max_triangles}")
+            if instances > self.max_instances:
+                raise self.doc.error(f"nodes[{node_index}]", f"the scene draws {instances} mesh "
+                                     f"primitives or more, over the limit instances "
+                                     f"{self.max_instances}")
 
     def _add_primitive(self, m: int, p: int, world: np.ndarray, node_index: int) -> None:
         doc, src, where = self.doc, self.doc.source, f"meshes[{m}].primitives[{p}]"
@@ -248,7 +281,8 @@ class GeometryBuilder:
         self.pieces.append(piece)
 
     def _check_declared_bounds(self, i: int, positions: np.ndarray) -> None:
-        """Warn when POSITION's declared min/max disagree with its data (checklist L11)."""
+        """Warn when POSITION's declared min/max disagree with its data (glTF 2.0 spec §Accessors:
+        POSITION must declare them)."""
         acc = self.doc.gltf.accessors[i]
         try:
             declared = np.array([acc.min, acc.max], np.float64).reshape(2, 3)
@@ -333,6 +367,32 @@ class GeometryBuilder:
                                          f"variant {v!r:.20} does not exist ({count} defined)")
                 out[v] = material
         return out
+
+
+def _declared_mesh_size(gltf, m: int) -> tuple[int, int, str]:
+    """(triangles, primitives, the count field of its largest primitive) mesh ``m`` declares,
+    from accessor counts alone."""
+    prims = gltf.meshes[m].primitives
+    if not isinstance(prims, list):
+        return 0, 0, ""
+    accessors = gltf.accessors or []
+    triangles, largest, biggest = 0, -1, ""
+    for prim in prims:
+        mode = prim.mode if prim.mode is not None else TRIANGLES
+        attributes = prim.attributes
+        position = (attributes.get("POSITION") if isinstance(attributes, dict)
+                    else getattr(attributes, "POSITION", None))
+        source = prim.indices if prim.indices is not None else position
+        if mode not in (TRIANGLES, TRIANGLE_STRIP, TRIANGLE_FAN) or not (
+                isinstance(source, int) and 0 <= source < len(accessors)):
+            continue
+        count = accessors[source].count
+        if isinstance(count, int) and not isinstance(count, bool):
+            drawn = triangle_count(max(count, 0), mode)
+            triangles += drawn
+            if drawn > largest:
+                largest, biggest = drawn, f"accessors[{source}].count"
+    return triangles, len(prims), biggest
 
 
 def _add_shading_frame(piece: Piece, normals: np.ndarray | None, attribute: Callable,
@@ -467,7 +527,8 @@ def generate_tangents(positions: np.ndarray, normals: np.ndarray, triangles: np.
     """(v, 4) float32 tangents from UV derivatives, averaged per vertex (Lengyel's method).
 
     T follows +u. glTF's v runs down the image, so the bitangent B = cross(N, T)·w must point
-    toward decreasing v (checklist M6): w = sign(dot(cross(N, T), -dP/dv)).
+    toward decreasing v (glTF 2.0 spec §Meshes, TANGENT; glTF-Sample-Models issue #174):
+    w = sign(dot(cross(N, T), -dP/dv)).
     """
     v = positions.shape[0]
     out = np.zeros((v, 4), np.float32)

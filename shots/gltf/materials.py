@@ -2,7 +2,8 @@
 
 One row per glTF material, then the default material (Spec §Default Material) for primitives
 without one. Texture slots point at rows of the texture atlas; colour slots (base colour,
-emissive, specular colour, sheen colour) are decoded from sRGB, the rest are linear (checklist M3).
+emissive, specular colour, sheen colour) are decoded from sRGB, the rest are linear, as each
+texture's description in the spec and the extension READMEs says.
 """
 
 from __future__ import annotations
@@ -87,8 +88,8 @@ INF = math.inf
 def texture_transform(offset, rotation: float, scale) -> np.ndarray:
     """(2, 3) float32 affine of KHR_texture_transform, uv' = offset + R·(scale ⊙ uv).
 
-    R = [[cos, sin], [-sin, cos]] (checklist M8: the form that reproduces the extension's worked
-    example; its GLSL listing disagrees, glTF #1563).
+    R = [[cos, sin], [-sin, cos]] (KHR_texture_transform README: the form that reproduces its worked
+    example; its GLSL listing disagrees, glTF issue #1563).
     """
     c, s = math.cos(rotation), math.sin(rotation)
     return np.array([[c * scale[0], s * scale[1], offset[0]],

@@ -1,8 +1,8 @@
 """Images and samplers into the flat texture atlas (Spec §Textures, §Images, §Samplers).
 
-Images are sniffed by magic number (checklist L19), decoded with Pillow to RGBA, colour
-textures sRGB-decoded (IEC 61966-2-1) before anything filters them, and stored with texel row 0
-= the image's top row, so uv (0, 0) is the top-left corner (Spec §Images).
+Images are sniffed by magic number (PNG: ISO/IEC 15948 §5.2; JPEG: FF D8 FF), decoded with Pillow
+to RGBA, colour textures sRGB-decoded (IEC 61966-2-1) before anything filters them, and stored with
+texel row 0 = the image's top row, so uv (0, 0) is the top-left corner (Spec §Images).
 """
 
 from __future__ import annotations
@@ -49,9 +49,10 @@ _LINEAR_LUT = (np.arange(256) / 255.0).astype(np.float32)
 class TextureAtlas:
     """Decodes the textures materials use, once per (texture, colour space)."""
 
-    def __init__(self, doc: Document, max_pixels: int):
+    def __init__(self, doc: Document, max_pixels: int, max_bytes: int = 1 << 62):
         self.doc = doc
         self.max_pixels = max_pixels
+        self.max_bytes = max_bytes  # decoded RGBA8 bytes over every atlas row
         self.pixels = 0
         self._rows: dict[tuple[int, bool], int] = {}
         self._pending: list[tuple[int, bool]] = []  # (image, sRGB) per atlas row, decoded last
@@ -96,6 +97,7 @@ class TextureAtlas:
                 return -1
         image_index = checks.index(source, doc.gltf.images, src, where + ".source", "images")
         width, height = self._open(image_index).size
+        self._check_budget(width, height, where)
         row = [0] * N_TEX_INFO
         row[TI_OFFSET] = self._texel_count
         row[TI_WIDTH], row[TI_HEIGHT] = width, height
@@ -108,6 +110,17 @@ class TextureAtlas:
         uri = "" if uri.startswith("data:") else uri
         self._names.append(str(image.name or uri or f"images[{image_index}]"))
         return len(self._info) - 1
+
+    def _check_budget(self, width: int, height: int, where: str) -> None:
+        """Refuse a texture use before decoding when the decoded texels would pass the budget.
+
+        Counted per atlas row (one image used as six textures is decoded six times), from the
+        size in the image header, at 4 bytes a texel (RGBA8).
+        """
+        wanted = 4 * (self._texel_count + width * height)
+        if wanted > self.max_bytes:
+            raise self.doc.error(where, f"decoded textures would take {wanted >> 20} MiB, over "
+                                        f"the limit texture_mb {self.max_bytes >> 20}")
 
     def _sampler(self, index, where: str) -> tuple[int, int, int]:
         """(wrapS, wrapT, magFilter); REPEAT and LINEAR without a sampler (Spec §Samplers)."""

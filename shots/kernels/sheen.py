@@ -8,7 +8,7 @@ dimmed by the light the lobe takes (albedo scaling, Estevez & Kulla 2017):
 - D: the Charlie distribution (2 + 1/α)·sin^(1/α)θ_h / (2π), α = sheenRoughness² (Estevez &
   Kulla 2017, "Production Friendly Microfacet Sheen BRDF"; the extension's "Sheen distribution").
 - V: 1 / (4 (N·L + N·V − N·L·N·V)), the extension's "simpler visibility term" after Ashikhmin &
-  Premože 2007. Filament ships the same expression as V_Neubelt (Neubelt & Pettineo 2013). It is
+  Premože 2007; Neubelt & Pettineo (2013, SIGGRAPH course notes) give the same expression. It is
   chosen over the extension's fitted Charlie Λ because it is cheap and that fit is no more
   accurate at low roughness: its Smith normalisation ∫G1(v)(v·h)⁺D dω_h = N·V is off by 32 % at
   sheenRoughness 0.2 and by a factor 4.7 at 0.05 (measured while making this module).

@@ -58,15 +58,17 @@ LANE_STACK = STACK_SIZE  # stack entries per lane
 # cameras: one ray after another wins over LANES in flight at 512 px over 40 degrees (0.0014 rad
 # per pixel, 1.06-1.21x) and loses at 256 px (0.0027 rad, 0.92-1.07x) and below: a ray that
 # retraces its predecessor's path finds it in cache and the branch predictor primed.
-# That needs the tree in cache: with 32 MB of L3 shared by two cores it lost at 60 MB (a million
-# triangles, 0.71-0.76x, where overlapping the cache misses of LANES rays pays) and won at 12 MB.
+# That needs the tree in cache: with 32 MB of L3 cache shared by two cores it lost at 60 MB (a
+# million triangles, 0.71-0.76x, where overlapping the cache misses of LANES rays pays) and won
+# at 12 MB.
 COHERENT_STEP = 2e-3
 COHERENT_SHARE = 0.75  # share of consecutive pairs that must be that close (scanlines wrap)
 COHERENT_SAMPLE = 8  # pairs judged: every 8th (the check costs 1/8 of judging them all)
 IN_TURN_MAX_BYTES = 16 << 20  # largest tree (nodes and vertices) traced in turn
 # Any rays, coherent or not, go one after another through a tree this small: with nothing to
 # wait for, keeping LANES rays in flight is pure overhead. Random rays, one thread: 1.14-1.18x
-# at 0.28 and 0.52 MB, 0.78x at 1.6 MB and 0.56x at 4.5 MB (L2 is 1 MB per core here).
+# at 0.28 and 0.52 MB, 0.78x at 1.6 MB and 0.56x at 4.5 MB (the L2 cache is 1 MB per core
+# here).
 IN_CACHE_BYTES = 768 << 10
 # Ize 2013: 1 + 2·gamma(3), gamma(n) = n·eps / (1 - n·eps), eps = 2^-24 (float32 boxes).
 _EPS32 = 2.0**-24

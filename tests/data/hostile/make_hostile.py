@@ -36,10 +36,15 @@ def tree_of(b: GltfBuilder) -> dict:
     return json.loads(b.json_bytes())
 
 
-def write_json(name: str, tree: dict | str, field: str | None, message: str) -> None:
+def write_json(name: str, tree: dict | str, field: str | None, message: str,
+               limits: dict | None = None) -> None:
+    """Write a case; ``limits`` are budgets (shots.limits) the case is loaded under, so a bomb
+    stays small in the repository while showing the check that refuses its full size."""
     text = tree if isinstance(tree, str) else json.dumps(tree)
     (HERE / name).write_text(text)
     EXPECTED[name] = {"field": field, "message": message}
+    if limits:
+        EXPECTED[name]["limits"] = limits
 
 
 def write_bytes(name: str, data: bytes, field: str | None, message: str) -> None:
@@ -93,6 +98,166 @@ def textured(image: dict) -> dict:
     return tree
 
 
+def png_bytes(pixels: np.ndarray, mode: str) -> bytes:
+    import io
+
+    from PIL import Image
+
+    out = io.BytesIO()
+    Image.fromarray(pixels).convert(mode).save(out, format="PNG", optimize=True)
+    return out.getvalue()
+
+
+def data_uri(data: bytes, media: str = "image/png") -> str:
+    return f"data:{media};base64," + base64.b64encode(data).decode()
+
+
+def bombs() -> None:
+    """Inputs that cost far more memory or time than their size; each refused by a budget
+    before the cost is paid (full-size versions: bench/hostile.py)."""
+    # one NUL once percent-decoded (Spec §URIs: URIs are percent-encoded)
+    write_json("uri_nul_encoded.gltf", with_buffer_uri("tri.bin%00.png"), "buffers[0].uri",
+               "NUL character")
+    write_json("uri_symlink_loop.gltf", with_buffer_uri("loop.bin"), "buffers[0].uri",
+               "not found")
+    os.symlink("loop.bin", HERE / "loop.bin")
+
+    # a strip of 80 M zero indices without a bufferView: counted from accessors[1].count
+    # (Spec §Meshes: a strip of n indices draws n - 2 triangles) before one index is made
+    tree = tree_of(base(np.array([0, 1, 2], np.uint16)))
+    tree["accessors"][1].pop("bufferView")
+    tree["accessors"][1]["count"] = 80_000_000
+    tree["meshes"][0]["primitives"][0]["mode"] = 5
+    write_json("bomb_index_strip.gltf", tree, "accessors[1].count", "over the limit triangles")
+
+    # one 1-bit 4096² PNG (2 KB) used by six texture slots, sRGB and linear: 6 decodes
+    big = png_bytes(np.zeros((4096, 4096), np.uint8), "1")
+    tree = tree_of(base())
+    tree["images"] = [{"uri": data_uri(big)}]
+    tree["textures"] = [{"source": 0} for _ in range(6)]
+    tree["materials"] = [{
+        "pbrMetallicRoughness": {"baseColorTexture": {"index": 0},
+                                 "metallicRoughnessTexture": {"index": 1}},
+        "normalTexture": {"index": 2}, "occlusionTexture": {"index": 3},
+        "emissiveTexture": {"index": 4},
+    }]
+    tree["meshes"][0]["primitives"][0]["material"] = 0
+    write_json("bomb_texture_reuse.gltf", tree, "textures[4]", "over the limit texture_mb")
+    # a 10000² PNG of 12 KB: under the pixel limit, 381 MiB decoded
+    write_json("bomb_png_10000.gltf",
+               textured({"uri": data_uri(png_bytes(np.zeros((10000, 10000), np.uint8), "1"))}),
+               "textures[0]", "over the limit texture_mb")
+
+    # 1,000 nodes instancing one mesh of 1,000 primitives: 1 M primitive instances
+    tree = tree_of(base())
+    tree["meshes"][0]["primitives"] *= 1000
+    tree["nodes"] = [{"mesh": 0} for _ in range(1000)]
+    tree["scenes"][0]["nodes"] = list(range(1000))
+    write_json("bomb_instancing.gltf", tree, "nodes[200]", "over the limit instances")
+
+    # extras of many small values: parsing them is what costs (here 30,000 of them)
+    tree = tree_of(base())
+    tree["extras"] = [[0, 0]] * 10_000
+    write_json("bomb_extras.gltf", tree, None, "over the limit json_values",
+               limits={"json_values": 20_000})
+
+    # a Draco payload declaring 19,602 triangles in its accessors: refused before decoding
+    draco = draco_grid(100)
+    if draco is not None:
+        write_json("bomb_draco.gltf", draco, "accessors[0].count", "over the limit triangles",
+                   limits={"triangles": 10_000})
+        # the same payload under accessors declaring one triangle: the Draco header's counts
+        # (Draco bitstream 2.2 connectivity header) refuse it before decoding
+        draco["accessors"][0]["count"], draco["accessors"][1]["count"] = 3, 3
+        write_json("bomb_draco_lying_counts.gltf", draco,
+                   "meshes[0].primitives[0].extensions.KHR_draco_mesh_compression.bufferView",
+                   "the Draco header declares 19602 faces", limits={"triangles": 10_000})
+
+
+PRESETS = HERE / "presets"
+
+
+def preset_cases() -> None:
+    """Hostile presets in presets/, with their own expected.json (the same format)."""
+    PRESETS.mkdir(exist_ok=True)
+    for old in PRESETS.iterdir():
+        old.unlink()
+    cases = {}
+
+    def case(name: str, text: str | bytes, field: str | None, message: str) -> None:
+        data = text if isinstance(text, bytes) else text.encode()
+        (PRESETS / name).write_bytes(data)
+        cases[name] = {"field": field, "message": message}
+
+    # TOML 1.0 §Float: inf and nan are valid TOML; a preset refuses them
+    case("inf_intensity.toml", "[environment]\nintensity = inf\n", "environment.intensity",
+         "must be a finite number, got inf")
+    case("nan_azimuth.toml", "[[lights]]\nazimuth_deg = nan\n", "lights[0].azimuth_deg",
+         "must be a finite number, got nan")
+    case("nan_in_vector.toml", '[[shots]]\nname = "fly"\nkind = "path"\n'
+         "keys = [{eye = [nan, 0, 1]}, {eye = [1, 2, 3]}]\n", "shots[0].keys[0].eye[0]",
+         "must be a finite number, got nan")
+    case("negative_inf_exposure.toml", "[look]\nexposure = -inf\n", "look.exposure",
+         "must be a finite number, got -inf")
+    case("deep_nesting.toml", "x = " + "[" * 5000 + "]" * 5000 + "\n", None,
+         "nested too deeply")
+    case("not_utf8.toml", b'description = "\xff\xfe"\n', None, "not UTF-8 text")
+    case("limits_unknown_key.toml", "[limits]\ntriangels = 5\n", "limits.triangels",
+         "did you mean 'triangles'?")
+    case("limits_inf_seconds.toml", "[limits]\nseconds = inf\n", "limits.seconds",
+         "must be a finite number")
+    # a chain of 20 presets extending each other: over the merge depth
+    for k in range(20):
+        parent = f'extends = "deep_{k + 1:02d}.toml"\n' if k < 19 else ""
+        (PRESETS / f"deep_{k:02d}.toml").write_text(parent)
+    cases["deep_00.toml"] = {"field": "extends", "message": "levels deep",
+                             "file": "deep_16.toml"}  # the first file past the depth
+    # 18 files in a diamond lattice: 2^9 paths to the bottom, each file read once
+    for level in range(9):
+        for side in "ab":
+            below = (f'extends = ["diamond_{level + 1}a.toml", "diamond_{level + 1}b.toml"]\n'
+                     if level < 8 else "")
+            (PRESETS / f"diamond_{level}{side}.toml").write_text(
+                below + f"[image]\nseed = {level}\n")
+    (PRESETS / "expected.json").write_text(json.dumps(cases, indent=1, sort_keys=True) + "\n")
+
+
+def draco_grid(n: int) -> dict | None:
+    """A glTF whose one primitive is an n × n vertex grid compressed with Draco
+    (KHR_draco_mesh_compression README: the accessors keep their counts, no bufferView)."""
+    try:
+        import DracoPy
+    except ImportError:
+        return None
+    u, v = np.meshgrid(np.arange(n), np.arange(n))
+    points = np.stack([u.ravel(), v.ravel(), np.zeros(n * n)], 1).astype(np.float32)
+    k = (v[:-1, :-1] * n + u[:-1, :-1]).ravel()
+    faces = np.concatenate([np.stack([k, k + 1, k + n], 1), np.stack([k + 1, k + n + 1, k + n],
+                                                                     1)]).astype(np.uint32)
+    payload = DracoPy.encode(points, faces)
+    return {
+        "asset": {"version": "2.0"},
+        "extensionsUsed": ["KHR_draco_mesh_compression"],
+        "extensionsRequired": ["KHR_draco_mesh_compression"],
+        "buffers": [{"byteLength": len(payload), "uri": data_uri(payload,
+                                                                 "application/octet-stream")}],
+        "bufferViews": [{"buffer": 0, "byteLength": len(payload)}],
+        "accessors": [
+            {"componentType": 5125, "count": faces.size, "type": "SCALAR"},
+            {"componentType": 5126, "count": n * n, "type": "VEC3",
+             "min": [0, 0, 0], "max": [n - 1, n - 1, 0]},
+        ],
+        "meshes": [{"primitives": [{
+            "attributes": {"POSITION": 1}, "indices": 0,
+            "extensions": {"KHR_draco_mesh_compression": {"bufferView": 0,
+                                                          "attributes": {"POSITION": 0}}},
+        }]}],
+        "nodes": [{"mesh": 0}],
+        "scenes": [{"nodes": [0]}],
+        "scene": 0,
+    }
+
+
 def main() -> None:
     for old in HERE.iterdir():
         keep = old.name in ("make_hostile.py", "__pycache__")
@@ -100,7 +265,7 @@ def main() -> None:
             old.unlink()
     J, BIN = 0x4E4F534A, 0x004E4942
 
-    # ---- paths outside the folder, network and file URIs (our policy, checklist L17) ----
+    # ---- paths outside the folder, network and file URIs (our policy: shots/gltf/container.py) ---
     write_json("uri_dotdot.gltf", with_buffer_uri("../secret.bin"), "buffers[0].uri",
                "leaves the model's folder")
     write_json("uri_dotdot_encoded.gltf", with_buffer_uri("sub/%2E%2E/%2E%2E/secret.bin"),
@@ -210,7 +375,7 @@ def main() -> None:
     tree = tree_of(base())
     tree["accessors"][0].pop("bufferView")
     tree["accessors"][0]["count"] = 2_000_000_000
-    write_json("zeros_accessor_huge.gltf", tree, "accessors[0].count", "exceed the loader's limit")
+    write_json("zeros_accessor_huge.gltf", tree, "accessors[0].count", "over the limit triangles")
     tree = tree_of(base())
     tree["meshes"][0]["primitives"][0]["attributes"]["POSITION"] = 7
     write_json("attribute_accessor_missing.gltf", tree,
@@ -313,6 +478,8 @@ def main() -> None:
     write_json("camera_ortho_zero_xmag.gltf", tree, "cameras[0].orthographic",
                "must not be zero")
 
+    bombs()
+    preset_cases()
     (HERE / "expected.json").write_text(json.dumps(EXPECTED, indent=1, sort_keys=True) + "\n")
     print(f"{len(EXPECTED)} hostile files written to {HERE}")
 

@@ -1,0 +1,81 @@
+"""What the materials should give: the albedo seen through a frame's camera, and the exposure
+reading the check judges (``shots.check.judge``).
+
+    reading = exposure_reading(prepared, camera, rgba, look.exposure)
+
+One ray per pixel centre through the BVH; at the first surface hit, the glTF base colour
+(factor × texture × vertex colour, glTF 2.0 spec §Materials) is what a perfectly white-lit
+matte surface would show. The rendered luminance over the same pixels divided by the albedo
+luminance is then the light the product received, whatever its colour: a light and a dark
+fabric under the same lights read alike, a doubled light reads twice as high.
+
+Only matte surfaces count: metals, clear-coated lacquer, glass (transmission) and glowing
+surfaces show the room's lights mirrored, through or emitted rather than their albedo lit, so a
+high-gloss stool would read several times brighter than an oak chair under the same lights.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from shots.accel import intersect_closest
+from shots.camera import Camera
+from shots.colour import LUMA_709
+from shots.kernels.albedo import A_COVERAGE, A_GLOSS, A_METALLIC, N_ALBEDO, base_colours
+
+METAL = 0.5  # metallic above this: the colour is a reflectance of the room, not an albedo
+WHITE = 0.99  # a base colour with every channel at least this is the untextured default
+MIN_PIXELS = 16  # fewer matte pixels than this give no reading
+
+
+def albedo_image(prepared, camera: Camera) -> np.ndarray:
+    """(h, w, N_ALBEDO) float64: the first surface at each pixel centre, columns ``A_*`` of
+    ``shots.kernels.albedo`` (base colour, coverage, metallic, gloss); all zero where the ray
+    misses the model (coverage 0)."""
+    origins, directions = camera.pixel_rays()
+    _, tri, b1, b2 = intersect_closest(prepared.bvh, origins, directions)
+    out = np.zeros((len(tri), N_ALBEDO))
+    base_colours(tri, b1, b2, directions, *prepared.packed, out)
+    return out.reshape(camera.height, camera.width, N_ALBEDO)
+
+
+def inner_pixels(covered: np.ndarray) -> np.ndarray:
+    """Covered pixels whose four neighbours are covered too: the product without its
+    anti-aliased outline, where a render pixel mixes with the background."""
+    inner = covered.copy()
+    inner[1:] &= covered[:-1]
+    inner[:-1] &= covered[1:]
+    inner[:, 1:] &= covered[:, :-1]
+    inner[:, :-1] &= covered[:, 1:]
+    inner[0], inner[-1], inner[:, 0], inner[:, -1] = False, False, False, False
+    return inner
+
+
+def exposure_reading(prepared, camera: Camera, rgba: np.ndarray, exposure: float) -> dict | None:
+    """Rendered and albedo luminance over the product's matte pixels, for the manifest.
+
+    Parameters
+    ----------
+    prepared : the scene (``shots.render.prepare_scene``). camera : the frame's camera.
+    rgba : the frame's premultiplied linear render. exposure : the look's exposure in stops.
+
+    Returns
+    -------
+    {"rendered": mean linear Y × 2^exposure, "albedo": mean base colour Y, "white": share of
+    those pixels whose base colour is pure white, "pixels": how many}, or None when fewer than
+    ``MIN_PIXELS`` matte pixels show.
+    """
+    albedo = albedo_image(prepared, camera)
+    matte = (albedo[..., A_METALLIC] <= METAL) & (albedo[..., A_GLOSS] <= 0.0)
+    pixels = inner_pixels(albedo[..., A_COVERAGE] >= 0.5) & matte
+    count = int(pixels.sum())
+    if count < MIN_PIXELS:
+        return None
+    base = albedo[..., :3][pixels]
+    rendered = np.asarray(rgba, np.float64)[..., :3][pixels]
+    return {
+        "rendered": float(np.mean(rendered @ LUMA_709) * 2.0**exposure),
+        "albedo": float(np.mean(base @ LUMA_709)),
+        "white": float(np.mean(np.all(base >= WHITE, axis=1))),
+        "pixels": count,
+    }
