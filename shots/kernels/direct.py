@@ -38,7 +38,7 @@ from shots.kernels.surface import (
 from shots.kernels.visibility import offset_point, shadow_ray
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sample, frame, bvh,
                  scene, ground, see_through, surf2, work, tstack):  # fmt: skip
     """Reflected radiance from all look lights with shadow rays; returns r, g, b.
@@ -79,7 +79,7 @@ def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sampl
 
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def shadow_amount(surf, lights, area_samples, contact_samples, spp, seed, pixel, sample,
                   frame, bvh, scene, ground, see_through, surf2, work,
                   tstack):  # fmt: skip

@@ -63,7 +63,7 @@ GLOSSY_DIELECTRIC = 0.3
 GLOSSY_METAL = 0.6
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def spawn_reflection(surf, ray, rw0, rw1, rw2, can_trace, frame, lights, env_map, pixel, sample,
                      stack, sp, work):  # fmt: skip
     """Reflect light of weight ``rw`` off the base layer; returns the stack size."""
@@ -128,7 +128,7 @@ def spawn_reflection(surf, ray, rw0, rw1, rw2, can_trace, frame, lights, env_map
     return sp
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def spawn_coat(surf, ray, wr, wg, wb, coat, can_trace, frame, env_map, stack, sp, work):
     """The clearcoat: a mirror-like layer of F0 0.04 on its own normal; returns the stack size."""
     vx, vy, vz = -ray[R_D], -ray[R_D + 1], -ray[R_D + 2]

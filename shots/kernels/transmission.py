@@ -36,7 +36,7 @@ from shots.kernels.surface import (
 from shots.kernels.visibility import offset_point
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def medium_attenuation(ray, surf, wr, wg, wb):
     """The ray's weight after Beer–Lambert absorption along the segment it just travelled.
 
@@ -66,7 +66,7 @@ def absorption(surf, c):
     return -math.log(col) / d
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def spawn_transmission(surf, ray, tdx, tdy, tdz, tw0, tw1, tw2, can_trace, env_map, frame,
                        stack, sp, work):  # fmt: skip
     """Push the transmitted ray with weight ``tw`` along ``t``, or add the environment seen
