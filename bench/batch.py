@@ -3,9 +3,9 @@
 Usage: python bench/batch.py [--quick] [--repeat N]
 
 The catalog is what ``shots demo`` renders for a shop: the thumbnails of the six demo models
-(assets_demo/*.glb, built-in preset ``thumbnail``: 512 px, 16 samples, one frame each) and the
-turntable of the stool (built-in ``demo-turntable``: 24 frames at 320 px, 9 samples, with GIF,
-WebP and MP4). ``--quick`` renders the same at a quarter of the pixels (thumbnails 256 px,
+(assets_demo/*.glb, built-in preset ``thumbnail``: 512 px, adaptive sampling, one frame each) and
+the turntable of the stool (built-in ``demo-turntable``: 24 frames at 320 px, adaptive sampling,
+with GIF, WebP and MP4). ``--quick`` renders the same at a quarter of the pixels (thumbnails 256 px,
 turntable 160 px). A full run takes about two and a half minutes on two idle cores, a quick
 one under a minute (plus numba's compile after a kernel changed). Three timings, in one run
 (``--repeat``: that many rounds, medians shown):
@@ -233,7 +233,8 @@ def main() -> None:
     efficiency = statistics.median(ratios["efficiency"])
     overhead = statistics.median(ratios["overhead"])
     shapes = ", ".join(
-        f"{b.name} {len(b.models)} × {b.preset.image.width} px {b.preset.image.samples} spp"
+        f"{b.name} {len(b.models)} × {b.preset.image.width} px "
+        f"{b.preset.image.samples or 'adaptive'} spp"
         for b in batches)
     rounds_note = f"medians of {args.repeat} rounds; " if args.repeat > 1 else ""
     print(f"catalog: {frames} frames ({shapes}); {rounds_note}load average "

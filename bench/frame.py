@@ -206,13 +206,15 @@ def main() -> None:
     parser.add_argument("--size", type=int, default=512)
     parser.add_argument("--preset", default="thumbnail")
     parser.add_argument("--repeat", type=int, default=5, help="repetitions (medians count)")
+    parser.add_argument("--samples", type=int, default=16,
+                        help="fixed samples per pixel (the ray count must match the frame's)")
     parser.add_argument("--turntable", default="turntable-36", help="preset timed for frames/min")
     args = parser.parse_args()
 
     scene, name = load_model(args.model)
     preset = load_preset(args.preset).with_image_size(args.size, args.size)
     scene = apply_model_fixes(scene, preset)
-    frame = plan_frames(preset, scene)[0]
+    frame = plan_frames(preset.with_samples(args.samples), scene)[0]
     t0 = time.perf_counter()
     prepared = prepare_scene(scene)
     prepare_seconds = time.perf_counter() - t0

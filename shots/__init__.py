@@ -12,4 +12,10 @@ The stages, in the order data flows through them:
 - ``shots.cli``       the ``shots`` command
 """
 
+import logging
+
 __version__ = "0.1.0"
+
+# A library does not print log records unless its user configures logging (Python logging
+# HOWTO, "Configuring Logging for a Library"): no last-resort output to stderr.
+logging.getLogger("shots").addHandler(logging.NullHandler())

@@ -71,6 +71,13 @@ def parse_size(text: str | None) -> tuple[int, int] | None:
     return int(match.group(1)), int(match.group(2))
 
 
+def parse_samples(count: int | None) -> int | None:
+    """--samples N: a forced count of camera samples per pixel, 1 to 4096."""
+    if count is not None and not 1 <= count <= 4096:
+        fail(f"--samples: expected a count between 1 and 4096, got {count}")
+    return count
+
+
 def parse_scene(text: str | None) -> int | str | None:
     return int(text) if text is not None and text.isdigit() else text
 
@@ -94,6 +101,9 @@ def render(
     output: OutputOpt = Path("renders"),
     size: Annotated[str | None, typer.Option(
         "--size", metavar="WxH", help="Image size WIDTHxHEIGHT.")] = None,
+    samples: Annotated[int | None, typer.Option(
+        "--samples", metavar="N",
+        help="Exactly N camera samples per pixel (adaptive sampling off).")] = None,
     preset: PresetOpt = "still",
     scene: SceneOpt = None,
     variant: Annotated[str | None, typer.Option(
@@ -114,6 +124,7 @@ def render(
                 output,
                 preset_with_limits(load_preset(preset), limit),
                 size=parse_size(size),
+                samples=parse_samples(samples),
                 scene_choice=parse_scene(scene),
                 variant=variant,
                 on_frame=lambda r: out.print(f"wrote {literal(r.path)}", highlight=False),
@@ -191,7 +202,8 @@ def demo(output: OutputOpt = Path("renders"), quiet: QuietOpt = False) -> None:
             print_summary(summary, err)
     out.print(f"demo renders in {output}/ (contact sheet: {output}/thumbnails/contact_sheet.png,"
               f" report: {output}/thumbnails/report.md, review page:"
-              f" {output}/thumbnails/review.html)", highlight=False)
+              f" {output}/thumbnails/review.html, storefront sets:"
+              f" {output}/thumbnails/storefront/)", highlight=False)
     raise typer.Exit(max(summary.exit_code for summary in summaries))
 
 
@@ -275,6 +287,53 @@ def parse_tolerances(items: list[str]) -> dict[str, object]:
             value = text.strip()
         values[key.strip()] = value
     return values
+
+
+preset_app = typer.Typer(cls=ShotsGroup, no_args_is_help=True,
+                         help="Look at presets: resolved, or the format's JSON Schema.")
+app.add_typer(preset_app, name="preset")
+
+
+@preset_app.command("show", cls=ShotsCommand)
+def preset_show(
+    preset: Annotated[str, typer.Argument(
+        metavar="PRESET", help="Built-in preset name or a TOML preset file.")],
+    model: Annotated[Path | None, typer.Option(
+        "--model", metavar="MODEL",
+        help="Merge this model's sidecar (MODEL.shots.toml) over the preset.")] = None,
+) -> None:
+    """Print a preset as TOML with `extends` (and a model's sidecar) resolved."""
+    from shots.presets import load_preset, resolved_toml, sidecar_for
+
+    sidecar = sidecar_for(model) if model is not None else None
+    if sidecar is not None and not sidecar.is_file():
+        warn(f"{model}: no sidecar {sidecar.name}; showing the preset alone")
+        sidecar = None
+    try:
+        sys.stdout.write(resolved_toml(load_preset(preset, sidecar), sidecar))
+    except ShotsError as exc:
+        fail(str(exc))
+
+
+@preset_app.command("schema", cls=ShotsCommand)
+def preset_schema(
+    output: Annotated[Path | None, typer.Option(
+        "--output", "-o", metavar="FILE",
+        help="Write the schema to this file (default: print it).")] = None,
+) -> None:
+    """Write the preset format as a JSON Schema, for editors that complete and check TOML."""
+    from shots.output import atomic_write_bytes
+    from shots.presets import json_schema
+
+    text = json.dumps(json_schema(), indent=2) + "\n"
+    if output is None:
+        sys.stdout.write(text)
+        return
+    try:
+        atomic_write_bytes(output, text.encode())
+    except ShotsError as exc:
+        fail(str(exc))
+    out.print(f"wrote {output}", highlight=False)
 
 
 def fmt3(values) -> str:

@@ -25,7 +25,7 @@ class DemoStep:
 
 
 DEMO_STEPS = (
-    DemoStep("catalog thumbnails", "thumbnail", None, "thumbnails"),
+    DemoStep("catalog thumbnails and storefront sets", "demo-thumbnail", None, "thumbnails"),
     DemoStep("hero views, every colour option", "demo-hero", (HERO_MODEL,), "hero", "all"),
     DemoStep("turntable", "demo-turntable", (TURNTABLE_MODEL,), "turntable"),
 )

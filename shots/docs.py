@@ -45,8 +45,20 @@ KEY_NOTES = {
     "Preset.description": "One line saying what the preset is for (listed below for built-ins).",
     "Preset.lights": "The light rig: one `[[lights]]` table per light.",
     "Preset.shots": "The shots to take: one `[[shots]]` table per shot.",
+    "Preset.derivatives": "Published versions of every frame: one `[[derivatives]]` table each.",
+    "Preset.publish": "Product table and copyright line for the derivatives.",
     "ImageSettings.width": "Image width in pixels.",
     "ImageSettings.height": "Image height in pixels.",
+    "ImageSettings.samples": "Camera samples per pixel. 0 (the default) samples adaptively: each "
+                             "pixel takes stratified sets until its estimated error is under "
+                             "`noise_target`; N forces exactly N in every pixel (previews, "
+                             "references; a square number is stratified exactly).",
+    "ImageSettings.noise_target": "Adaptive sampling stops a pixel when its estimated error (one "
+                                  "standard error, with its 3×3 neighbours) is under this many "
+                                  "8-bit sRGB codes (0–255) of the displayed colour or alpha.",
+    "ImageSettings.min_samples": "Adaptive sampling: samples every pixel takes before its error "
+                                 "is judged (at least 8: two sets of 4 give a variance).",
+    "ImageSettings.max_samples": "Adaptive sampling: the most samples a pixel takes.",
     "ImageSettings.seed": "Base of every frame's random numbers: the same seed gives the same "
                           "pixels on any machine and thread count.",
     "LookSettings.exposure": "Exposure in stops: linear light is multiplied by 2^exposure "
@@ -197,12 +209,21 @@ def cli_reference() -> str:
         "`shots --help` lists the commands, `shots COMMAND --help` shows one of them and "
         "`shots --version` prints the version; the same text, generated from the code, follows.",
     ]
+    for name, command in _commands(group, context):
+        lines += ["", *command_reference(name, command)]
+    return "\n".join(lines)
+
+
+def _commands(group, context, prefix: str = ""):
+    """(name, command) of every visible command, a sub-group's as "group sub"."""
     for name in group.list_commands(context):
         command = group.get_command(context, name)
         if command is None or command.hidden:
             continue
-        lines += ["", *command_reference(name, command)]
-    return "\n".join(lines)
+        if hasattr(command, "list_commands"):  # a group of commands (`shots preset ...`)
+            yield from _commands(command, context, f"{prefix}{name} ")
+        else:
+            yield f"{prefix}{name}", command
 
 
 def command_reference(name: str, command) -> list[str]:
@@ -317,6 +338,7 @@ def preset_reference() -> str:
         table = _strip(top.model_fields[key].annotation)
         lines += ["", f"#### `[{key}]`", "", *_model_block(table)]
     lines += ["", "#### `[[lights]]`", "", *_model_block(presets.RigLight)]
+    lines += ["", "#### `[[derivatives]]`", "", *_model_block(presets.Derivative)]
     lines += ["", *_shots_reference()]
     lines += ["", *builtin_presets_reference()]
     return "\n".join(lines)

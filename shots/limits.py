@@ -23,7 +23,7 @@ class Limits(Table):
     triangles: int = Field(20_000_000, ge=1)  # drawn, every node instance counted
     instances: int = Field(200_000, ge=1)  # mesh primitives drawn, counted over every node
     texture_pixels: int = Field(268_435_456, ge=1)  # pixels of the distinct images
-    texture_mb: int = Field(256, ge=1)  # decoded RGBA, 4 bytes a texel, per texture use
+    texture_mb: int = Field(768, ge=1)  # decoded texels with mip levels, each image stored once
     file_mb: int = Field(2048, ge=1)  # the model file and each file it references
     json_values: int = Field(5_000_000, ge=1)  # arrays, objects, numbers... of the glTF JSON
     seconds: float = Field(1800.0, gt=0.0)  # wall time a worker spends on one model's task

@@ -5,6 +5,7 @@ A run killed at any moment leaves either the previous file or the new one, never
 
 from __future__ import annotations
 
+import io
 import os
 import tempfile
 from pathlib import Path
@@ -14,6 +15,7 @@ from PIL import Image
 
 from shots.colour import display_codes, quantize
 from shots.errors import RenderError
+from shots.tags import ImageMetadata, tag_png
 
 
 def _read_umask() -> int:
@@ -57,10 +59,9 @@ def png_bytes(display: np.ndarray, bits: int = 8) -> bytes:
     return encode_png(quantize(display, bits))
 
 
-def encode_png(codes: np.ndarray) -> bytes:
-    """PNG bytes of (h, w, 4) RGBA codes: uint8 (8-bit PNG) or uint16 (16-bit PNG)."""
-    import io
-
+def encode_png(codes: np.ndarray, metadata: ImageMetadata | None = None) -> bytes:
+    """PNG bytes of (h, w, 4) RGBA codes: uint8 (8-bit PNG) or uint16 (16-bit PNG), tagged as
+    sRGB (``shots.tags``), with ``metadata`` as text chunks when given."""
     buffer = io.BytesIO()
     if codes.dtype == np.uint8:
         Image.fromarray(codes, "RGBA").save(buffer, format="PNG", optimize=False,
@@ -71,7 +72,16 @@ def encode_png(codes: np.ndarray) -> bytes:
         height, width = codes.shape[:2]
         writer = png.Writer(width, height, greyscale=False, alpha=True, bitdepth=16)
         writer.write(buffer, codes.reshape(height, width * 4))
-    return buffer.getvalue()
+    return tag_png(buffer.getvalue(), metadata)
+
+
+def decode_png(data: bytes) -> np.ndarray:
+    """(h, w, 4) RGBA codes of an 8-bit (uint8) or 16-bit (uint16) RGBA PNG, exactly."""
+    import png
+
+    width, height, rows, info = png.Reader(bytes=data).asRGBA()
+    dtype = np.uint8 if info["bitdepth"] <= 8 else np.uint16
+    return np.vstack([np.asarray(row, dtype) for row in rows]).reshape(height, width, 4)
 
 
 def write_png(

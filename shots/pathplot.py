@@ -16,6 +16,7 @@ from shots.camera import ORTHOGRAPHIC, Camera
 from shots.output import atomic_write_bytes
 from shots.planner import Extent, Frame
 from shots.scene import Scene
+from shots.tags import tag_png
 
 PANEL = 560  # pixels per view panel (square)
 HEADER = 28
@@ -72,7 +73,7 @@ def write_path_picture(frames: list[Frame], scene: Scene, path: Path) -> Path:
         draw.text((30, y + 2), f"{shot}: {count} frame(s)", fill=INK, font=font)
     buffer = io.BytesIO()
     picture.save(buffer, format="PNG")
-    atomic_write_bytes(Path(path), buffer.getvalue())
+    atomic_write_bytes(Path(path), tag_png(buffer.getvalue()))
     return Path(path)
 
 

@@ -48,6 +48,7 @@ def render_model(
     preset: Preset | str = "still",
     *,
     size: tuple[int, int] | None = None,
+    samples: int | None = None,
     scene_choice: int | str | None = None,
     variant: str | None = None,
     on_frame: Callable[[RenderedFrame], None] | None = None,
@@ -60,6 +61,7 @@ def render_model(
     model : a .gltf or .glb file.
     preset : a Preset, a built-in preset name or a path to a TOML preset.
     size : (width, height) overriding the preset's image size.
+    samples : exactly this many camera samples per pixel (adaptive sampling off).
     scene_choice : glTF scene index or name (default: the file's default scene, else the first).
     variant : a KHR_materials_variants name to render instead of the default materials.
     on_frame : called after each frame is written (progress reporting).
@@ -69,6 +71,8 @@ def render_model(
         preset = load_preset(preset)
     if size is not None:
         preset = preset.with_image_size(*size)
+    if samples is not None:
+        preset = preset.with_samples(samples)
     loaded = load_scene(model, scene=scene_choice, limits=preset.limits)
     hints = model_hints(loaded) if preset.model.units == "m" and preset.model.up_axis == "y" else []
     scene = apply_model_fixes(loaded, preset)

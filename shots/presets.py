@@ -4,7 +4,8 @@ A preset has these tables, every key optional (the defaults below apply)::
 
     description = "..."
     extends = "thumbnail"            # or a path relative to this file, or a list merged in order
-    [image]       width height samples light_samples gloss_samples bounces seed
+    [image]       width height samples noise_target min_samples max_samples light_samples
+                  gloss_samples bounces seed
     [look]        exposure (stops) tone_map
     [model]       units ("m", "cm", "mm", "auto") up_axis ("y", "z")
     [background]  kind ("transparent", "solid", "gradient", "environment") color color_bottom
@@ -24,6 +25,7 @@ import copy
 import difflib
 import importlib.resources
 import math
+import re
 import tomllib
 import types
 import typing
@@ -103,11 +105,21 @@ CameraReference = Annotated[str | int, PlainValidator(_camera_reference)]
 class ImageSettings(Table):
     width: int = Field(512, ge=1, le=16384)
     height: int = Field(512, ge=1, le=16384)
-    samples: int = Field(16, ge=1, le=4096)  # camera samples per pixel (square = exact strata)
+    samples: int = Field(0, ge=0, le=4096)
+    noise_target: float = Field(2.0, ge=0.1, le=64.0)
+    min_samples: int = Field(8, ge=8, le=4096)
+    max_samples: int = Field(64, ge=8, le=4096)
     light_samples: int = Field(4, ge=1, le=1024)  # shadow rays per area light per hit
     gloss_samples: int = Field(4, ge=1, le=1024)  # reflection rays for rough surfaces
     bounces: int = Field(4, ge=0, le=64)  # reflection/refraction recursion limit
     seed: int = Field(0, ge=0, le=2**32 - 1)
+
+    @model_validator(mode="after")
+    def _sample_range(self) -> ImageSettings:
+        if self.min_samples > self.max_samples:
+            raise ValueError(f"min_samples ({self.min_samples}) must not exceed max_samples "
+                             f"({self.max_samples})")  # fmt: skip
+        return self
 
 
 class LookSettings(Table):
@@ -403,6 +415,62 @@ SHOT_KINDS = {"views": ViewsShot, "turntable": TurntableShot, "orbit": OrbitShot
               "path": PathShot, "file_camera": FileCameraShot}
 
 
+DERIVATIVE_SUFFIXES = {"jpeg": (".jpg", ".jpeg"), "webp": (".webp",), "png": (".png",),
+                       "avif": (".avif",)}
+PixelBox = Annotated[tuple[Annotated[int, Ge(1), Le(16384)], Annotated[int, Ge(1), Le(16384)]],
+                     Strict(False)]
+
+
+class Derivative(Table):
+    """A published version of every frame (of ``shots``, default all): resized from the master
+    in linear light, flattened on ``background`` or kept transparent, and written to ``path``.
+
+    ``path`` is a template relative to the output folder with the fields ``{model}``,
+    ``{variant}``, ``{shot}``, ``{frame}``, ``{view}`` (a named view, else the frame number),
+    ``{size}`` (this file's pixel size), ``{name}`` (this derivative's), and with a product
+    table ``{sku}``, ``{title}`` and its other columns; it ends with the format's file suffix.
+    """
+
+    name: ShotName  # names the derivative in manifests and the {name} field; unique
+    format: Literal[tuple(DERIVATIVE_SUFFIXES)]  # the file format (AVIF where Pillow has libavif)
+    path: str  # file path template, relative to the output folder (fields above)
+    longest_side: int | None = Field(None, ge=1, le=16384)  # the longer side in pixels (or give box)
+    box: PixelBox | None = None  # exact [width, height]; the frame is fitted and centred
+    background: DisplayColour | None = None  # flatten onto this sRGB colour; absent keeps alpha
+    quality: int = Field(85, ge=1, le=100)  # JPEG, WebP and AVIF encoder quality
+    lossless: bool = False  # lossless WebP (WebP only)
+    chroma: Literal["4:2:0", "4:4:4"] = "4:2:0"  # JPEG and AVIF chroma subsampling
+    shots: list[ShotName] | None = None  # the shots whose frames are published; absent: all
+
+    @model_validator(mode="after")
+    def _derivative(self) -> Derivative:
+        if (self.longest_side is None) == (self.box is None):
+            raise ValueError("give longest_side or box (one of them)")
+        if self.format == "jpeg" and self.background is None:
+            raise ValueError("JPEG has no alpha channel: give a background colour to flatten on")
+        suffixes = DERIVATIVE_SUFFIXES[self.format]
+        if not self.path.lower().endswith(suffixes):
+            raise ValueError(f"path must end with {' or '.join(suffixes)} for {self.format}")
+        if self.lossless and self.format != "webp":
+            raise ValueError("lossless applies to webp only")
+        if "chroma" in self.model_fields_set and self.format not in ("jpeg", "avif"):
+            raise ValueError("chroma applies to jpeg and avif only")
+        if self.format == "avif":
+            from PIL import features
+
+            if not features.check("avif"):
+                raise ValueError("this installation's Pillow cannot write AVIF (it was built "
+                                 "without libavif); use jpeg, webp or png")
+        return self
+
+
+class PublishSettings(Table):
+    """Catalog names and rights for the derivatives."""
+
+    products: str | None = None  # product table (CSV), relative to the preset that names it
+    copyright: str = Field("", max_length=200)  # written into every derivative's metadata
+
+
 class Preset(Table):
     """A validated preset. ``source`` is the file it came from; ``name`` its stem."""
 
@@ -415,6 +483,8 @@ class Preset(Table):
     ground: GroundSettings = GroundSettings()
     lights: list[RigLight] = Field(default_factory=list, max_length=32)
     shots: list[Shot] = Field(default_factory=list, max_length=256)
+    derivatives: list[Derivative] = Field(default_factory=list, max_length=32)
+    publish: PublishSettings = PublishSettings()
     check: CheckSettings = CheckSettings()
     limits: Limits = Limits()  # per-model budgets (shots.limits); no effect on pixels
     _source: str = PrivateAttr("")
@@ -435,12 +505,36 @@ class Preset(Table):
                 raise ValueError(f"shots[{index}].name: {name!r} is used by an earlier shot")
         return self
 
+    @model_validator(mode="after")
+    def _derivatives_fit(self) -> Preset:
+        shot_names = [shot.name for shot in self.shots]
+        seen: dict[str, str] = {}
+        for index, derivative in enumerate(self.derivatives):
+            if derivative.name in seen:
+                raise ValueError(f"derivatives[{index}].name: {derivative.name!r} is used by "
+                                 f"an earlier derivative")
+            if derivative.path in seen.values():
+                raise ValueError(f"derivatives[{index}].path: {derivative.path!r} is the path "
+                                 f"of an earlier derivative; their files would collide")
+            seen[derivative.name] = derivative.path
+            unknown = [s for s in derivative.shots or () if s not in shot_names]
+            if unknown:
+                raise ValueError(f"derivatives[{index}].shots: no shot {unknown[0]!r} "
+                                 f"(shots: {', '.join(shot_names) or 'none'})")
+        return self
+
     def with_image_size(self, width: int, height: int) -> Preset:
         """The same preset rendering at ``width`` × ``height`` pixels."""
+        return self.with_image(width=width, height=height)
+
+    def with_samples(self, samples: int) -> Preset:
+        """The same preset with exactly ``samples`` camera samples per pixel (adaptivity off)."""
+        return self.with_image(samples=samples)
+
+    def with_image(self, **changes) -> Preset:
+        """The same preset with these ``[image]`` keys changed (validated like the file's)."""
         try:
-            image = ImageSettings.model_validate(
-                {**self.image.model_dump(), "width": width, "height": height}
-            )
+            image = ImageSettings.model_validate({**self.image.model_dump(), **changes})
         except ValidationError as exc:
             raise PresetError(self.source, "image", _first_problem(exc)[1]) from None
         sized = self.model_copy(update={"image": image})
@@ -464,12 +558,27 @@ def builtin_preset_names() -> list[str]:
     return sorted(path.stem for path in builtin_folder().glob("*.toml"))
 
 
-def load_preset(name_or_path: str | Path) -> Preset:
-    """Read, merge (``extends``) and validate a preset.
+SIDECAR_SUFFIX = ".shots.toml"
+# What a sidecar may not change: the batch's files and their names stay the house's.
+SIDECAR_FIXED = ("derivatives", "publish", "check", "limits")
+
+
+def sidecar_for(model: str | Path) -> Path:
+    """Where a model's own preset exceptions would be: ``chair.glb`` → ``chair.shots.toml``."""
+    model = Path(model)
+    return model.with_name(model.stem + SIDECAR_SUFFIX)
+
+
+def load_preset(name_or_path: str | Path, sidecar: str | Path | None = None) -> Preset:
+    """Read, merge (``extends``) and validate a preset, with a model's sidecar merged over it.
 
     Parameters
     ----------
     name_or_path : a built-in preset name ("thumbnail") or the path of a TOML file.
+    sidecar : a model's ``<model>.shots.toml`` (same schema, no ``extends``): its keys are
+        merged over the preset's. ``derivatives``, ``publish``, ``check``, ``limits`` and the
+        image size stay the batch's, and its ``shots`` (a longer lens, another elevation) keep the batch's
+        shot names, kinds and frame counts, so every model's files are the same set.
 
     Raises
     ------
@@ -480,6 +589,9 @@ def load_preset(name_or_path: str | Path) -> Preset:
         data, origins = _read_merged(path, (), {})
     except RecursionError:
         raise PresetError(path, None, "tables nested too deeply") from None
+    if sidecar is not None:
+        base = load_preset(path)
+        _merge_sidecar(Path(sidecar), data, origins)
     _resolve_files(data, origins)
     try:
         preset = Preset.model_validate(data)
@@ -487,7 +599,67 @@ def load_preset(name_or_path: str | Path) -> Preset:
         field, message = _first_problem(exc)
         raise PresetError(_origin(origins, exc, path), field, message) from None
     preset._source = str(path)
+    if sidecar is not None:
+        _same_shots(Path(sidecar), base, preset)
     return preset
+
+
+def _same_shots(sidecar: Path, base: Preset, merged: Preset) -> None:
+    def outline(preset: Preset) -> list[tuple[str, str, int]]:
+        return [(shot.name, shot.kind, len(shot.views) if isinstance(shot, ViewsShot)
+                 else getattr(shot, "frames", 1)) for shot in preset.shots]
+
+    for index, (ours, theirs) in enumerate(zip(outline(base), outline(merged), strict=False)):
+        if ours != theirs:
+            raise PresetError(sidecar, f"shots[{index}]", f"must keep the preset's shot "
+                                                          f"{ours[0]!r} ({ours[1]}, {ours[2]} "
+                                                          f"frame(s)); only its settings change")
+    if len(base.shots) != len(merged.shots):
+        raise PresetError(sidecar, "shots", f"must keep the preset's {len(base.shots)} shot(s)")
+
+
+def resolved_toml(preset: Preset, sidecar: Path | None = None) -> str:
+    """The preset as one TOML document with ``extends`` (and ``sidecar``) merged in: every key
+    some file set, none of the defaults, so loading it gives the same preset."""
+    import tomli_w
+
+    data = preset.model_dump(mode="json", exclude_unset=True)
+    if "shots" in data:  # a shot's name and kind first, as people write them
+        data["shots"] = [{"name": s.pop("name"), "kind": s.pop("kind"), **s}
+                         for s in data["shots"]]
+    text = tomli_w.dumps(data)
+    # tomli-w puts each array item on a line of its own; colours and sizes read better inline
+    text = re.sub(r"\[\n((?: {4}[^\[\]{}\n]+,\n)+)\]",
+                  lambda m: "[" + " ".join(m.group(1).split()).rstrip(",") + "]", text)
+    where = f"{preset.source}" + (f" with the sidecar {sidecar}" if sidecar else "")
+    return f"# {where}, extends merged\n{text}"
+
+
+def json_schema() -> dict:
+    """A JSON Schema (draft 2020-12, pydantic's) of the preset format, for editors."""
+    schema = Preset.model_json_schema()
+    schema["properties"]["extends"] = {
+        "description": "Presets to start from: a built-in name or a path relative to this "
+                       "file, or an array of them merged in order.",
+        "anyOf": [{"type": "string"}, {"type": "array", "items": {"type": "string"}}],
+    }
+    schema["$schema"] = "https://json-schema.org/draft/2020-12/schema"
+    schema["title"] = "shots preset"
+    return schema
+
+
+def _merge_sidecar(sidecar: Path, data: dict, origins: dict) -> None:
+    own = _read_toml(sidecar)
+    for key in ("extends", *SIDECAR_FIXED):
+        if key in own:
+            raise PresetError(sidecar, key, "a sidecar cannot set this: it changes the batch's "
+                                            "files for every model (set it in the preset)")
+    image = own.get("image")
+    for key in ("width", "height"):
+        if isinstance(image, dict) and key in image:
+            raise PresetError(sidecar, f"image.{key}", "a sidecar cannot change the image "
+                                                       "size (the catalog's files share it)")
+    _merge(data, origins, own, _origins_of(own, str(sidecar), ()), ())
 
 
 def check_settings(values: dict, source: str = "[check]") -> CheckSettings:
@@ -611,15 +783,17 @@ def _merge(base: dict, origins: dict, over: dict, over_origins: dict, prefix: tu
 
 
 def _resolve_files(data: dict, origins: dict) -> None:
-    """Make ``environment.image`` absolute, relative to the preset file that names it."""
-    environment = data.get("environment")
-    if not isinstance(environment, dict) or not isinstance(environment.get("image"), str):
-        return
-    source = Path(origins[("environment", "image")])
-    image = source.parent / environment["image"]
-    if not image.is_file():
-        raise PresetError(source, "environment.image", f"no such file {environment['image']!r}")
-    environment["image"] = str(image.resolve())
+    """Make ``environment.image`` and ``publish.products`` absolute, relative to the preset
+    file that names them."""
+    for table, key in (("environment", "image"), ("publish", "products")):
+        section = data.get(table)
+        if not isinstance(section, dict) or not isinstance(section.get(key), str):
+            continue
+        source = Path(origins[(table, key)])
+        target = source.parent / section[key]
+        if not target.is_file():
+            raise PresetError(source, f"{table}.{key}", f"no such file {section[key]!r}")
+        section[key] = str(target.resolve())
 
 
 # --- one-line messages from pydantic's errors -------------------------------------------------
@@ -864,6 +1038,9 @@ def resolve_look(preset: Preset, camera: Camera, centre, radius: float, seed: in
         ground=Ground(**preset.ground.model_dump()),
         background=Background(**preset.background.model_dump()),
         samples=preset.image.samples,
+        noise_target=preset.image.noise_target,
+        min_samples=preset.image.min_samples,
+        max_samples=preset.image.max_samples,
         area_light_samples=preset.image.light_samples,
         glossy_samples=preset.image.gloss_samples,
         max_depth=preset.image.bounces,

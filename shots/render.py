@@ -7,11 +7,14 @@ Everything per pixel happens in one numba kernel (``shots.kernels.image.render_i
 module only packs the scene, the look, the camera and the floor into the flat arrays it reads.
 
 Image formation
-    ``look.samples`` camera samples per pixel on a jittered grid (a square count is stratified
-    exactly), warped to a tent filter of radius 1 pixel (filter importance sampling, Ernst et
-    al. 2006), equally weighted; a single sample goes through the pixel centre. Every random
-    number is a hash of (look.seed, pixel, sample, dimension): reruns are bit-identical and do
-    not depend on the number of threads.
+    Camera samples on a jittered grid per stratified set (a square count is stratified exactly),
+    warped to a tent filter of radius 1 pixel (filter importance sampling, Ernst et al. 2006),
+    equally weighted; a single sample goes through the pixel centre. ``look.samples`` = N > 0
+    gives every pixel one set of exactly N samples; 0 renders passes of a few samples until each
+    pixel's estimated error is under ``look.noise_target`` display codes, between
+    ``look.min_samples`` and ``look.max_samples`` (``shots.sampling_control``). Every random
+    number is a hash of (seed, pixel, sample, dimension), the pass number folded into the seed:
+    reruns are bit-identical and do not depend on the number of threads.
 Sample counts per hit
     ``area_light_samples`` (shadow rays per area light), ``glossy_samples`` (reflection rays of a
     glossy surface) and the floor's contact rays (at least 4) are counts for one camera sample.
@@ -34,6 +37,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from shots import sampling_control
 from shots.accel import Bvh, build_bvh
 from shots.camera import ORTHOGRAPHIC, Camera
 from shots.colour import srgb_to_linear
@@ -102,7 +106,7 @@ def pack_scene(scene: Scene) -> tuple:
     Returns
     -------
     verts : (v, N_VERT) float32; faces : (n, 4) int32; materials : (m, N_MAT) float32;
-    texels : (k, 4) float32; tex_info : (t, N_TEX_INFO) int32.
+    texels : (k,) uint8; tex_info : (t, N_TEX_INFO) int32.
     """
     v = len(scene.positions)
     verts = np.zeros((v, layout.N_VERT), np.float32)
@@ -124,7 +128,7 @@ def pack_scene(scene: Scene) -> tuple:
     slots[:, :, layout.SLOT_TEX] = table.texture
     slots[:, :, layout.SLOT_SET] = table.texcoord
     slots[:, :, layout.SLOT_A :] = np.asarray(table.uv_transform).reshape(m, N_SLOTS, 6)
-    texels = np.ascontiguousarray(scene.textures.texels, np.float32).reshape(-1, 4)
+    texels = np.ascontiguousarray(scene.textures.texels, np.uint8).reshape(-1)
     tex_info = np.ascontiguousarray(scene.textures.info, np.int32).reshape(-1, N_TEX_INFO)
     return verts, faces, materials, texels, tex_info
 
@@ -232,7 +236,7 @@ def pack_frame(
     row[layout.F_YMAG] = camera.ymag
     row[layout.F_WIDTH] = camera.width
     row[layout.F_HEIGHT] = camera.height
-    row[layout.F_SAMPLES] = max(int(look.samples), 1)
+    row[layout.F_SAMPLES] = max(int(look.samples), 1)  # per stratified set; passes reset it
     row[layout.F_AREA_SAMPLES] = max(int(look.area_light_samples), 1)
     row[layout.F_GLOSSY_SAMPLES] = max(int(look.glossy_samples), 1)
     row[layout.F_MAX_DEPTH] = max(int(look.max_depth), 0)
@@ -266,22 +270,40 @@ def render_frame(prepared: PreparedScene, camera: Camera, look: Look) -> np.ndar
     (height, width, 4) float32 premultiplied linear RGBA. Alpha is 0 where a transparent
     background shows and carries the shadow on a shadow catcher (whose colour is black).
     """
+    return render_frame_counted(prepared, camera, look)[0]
+
+
+def render_frame_counted(
+    prepared: PreparedScene, camera: Camera, look: Look
+) -> tuple[np.ndarray, np.ndarray]:
+    """``render_frame`` and the (height, width) int32 count of camera samples each pixel took,
+    as the kernel counted them."""
     if camera.width < 1 or camera.height < 1:
         raise RenderError("<camera>", "size", f"bad image size {camera.width}x{camera.height}")
-    out = np.zeros((camera.height, camera.width, 4), np.float32)
     radiance, sh = _environment(look.environment)
-    image.render_image(
-        out,
-        pack_frame(camera, look, prepared.see_through, sh, prepared.bounds),
-        pack_lights(look.lights),
-        radiance,
-        pack_ground(look.ground, prepared.bounds, camera),
-        tuple(prepared.bvh),
-        prepared.packed,
-    )
+    frame = pack_frame(camera, look, prepared.see_through, sh, prepared.bounds)
+    arrays = (pack_lights(look.lights), radiance,
+              pack_ground(look.ground, prepared.bounds, camera), tuple(prepared.bvh),
+              prepared.packed)  # fmt: skip
+
+    def run_pass(samples, seed, active, out, counts):
+        frame[layout.F_SAMPLES] = samples
+        frame[layout.F_SEED] = seed
+        image.render_image(out, frame, *arrays, active, counts)
+
+    shape = (camera.height, camera.width)
+    seed = int(look.seed) & 0xFFFFFFFF
+    if look.samples > 0:
+        out, counts = sampling_control.render_fixed(run_pass, shape, look.samples, seed)
+    else:
+        out, counts = sampling_control.render_adaptive(
+            run_pass, shape, seed, look.noise_target, look.min_samples, look.max_samples,
+            look.exposure, look.tone_map,
+            SHADOW_NOISE_FLOOR if look.ground.kind == "shadow_catcher" else 0.0,
+        )  # fmt: skip
     if look.ground.kind == "shadow_catcher":
         lift_shadow_noise_floor(out)
-    return out
+    return out, counts
 
 
 def lift_shadow_noise_floor(rgba: np.ndarray, floor: float = SHADOW_NOISE_FLOOR) -> None:

@@ -58,13 +58,22 @@ T_SHEEN_COLOR = 11
 T_SHEEN_ROUGHNESS = 12
 N_SLOTS = 13
 
-# --- sampler codes (glTF 2.0 spec §Samplers) ------------------------------------------------
+# --- sampler codes (glTF 2.0 spec §Samplers; the OpenGL enums it borrows) ----------------------
 WRAP_REPEAT, WRAP_CLAMP, WRAP_MIRROR = 10497, 33071, 33648
 FILTER_NEAREST, FILTER_LINEAR = 9728, 9729
+NEAREST_MIPMAP_NEAREST, LINEAR_MIPMAP_NEAREST = 9984, 9985
+NEAREST_MIPMAP_LINEAR, LINEAR_MIPMAP_LINEAR = 9986, 9987
 
-# tex_info columns (int32): where a texture's texels sit in the flat atlas
+# tex_info columns (int32): where a texture's texels sit in the flat byte atlas, how to read them
 TI_OFFSET, TI_WIDTH, TI_HEIGHT, TI_WRAP_S, TI_WRAP_T, TI_MAG_FILTER = 0, 1, 2, 3, 4, 5
-N_TEX_INFO = 6
+TI_MIN_FILTER = 6
+TI_CHANNELS = 7  # 1 grey, 2 grey + alpha, 3 RGB, 4 RGBA
+TI_BYTES = 8  # bytes per channel value: 1 (8-bit) or 2 (16-bit, little-endian)
+TI_SRGB = 9  # 1: colour channels are sRGB-encoded (decoded on lookup), alpha is linear
+TI_LEVELS = 10  # mip levels stored; level l is max(1, w >> l) × max(1, h >> l)
+TI_LEVEL = 11  # byte offset of each level (MAX_LEVELS columns); TI_OFFSET = level 0
+MAX_LEVELS = 16
+N_TEX_INFO = TI_LEVEL + MAX_LEVELS
 
 
 def default_material_params() -> np.ndarray:
@@ -127,18 +136,27 @@ class MaterialTable:
 
 @dataclass(frozen=True)
 class Textures:
-    """All decoded textures in one flat atlas (what the kernels sample).
+    """All decoded textures and their mip levels in one flat byte atlas (what the kernels sample).
 
     Attributes
     ----------
-    texels : (k, 4) float32, RGBA in linear values (colour textures already sRGB-decoded).
-    info : (t, N_TEX_INFO) int32, columns ``TI_*``: first texel, width, height, wraps, filter.
+    texels : (k,) uint8, every texture's levels back to back, rows from the image's top, channel
+        values of 1 or 2 bytes as stored (``shots.kernels.texture`` decodes them on lookup).
+        Textures that use the same image in the same colour space share their bytes.
+    info : (t, N_TEX_INFO) int32, columns ``TI_*``: level offsets, size, wraps, filters, format.
     names : one name per texture for reporting.
     """
 
-    texels: np.ndarray = field(default_factory=lambda: np.zeros((0, 4), np.float32))
+    texels: np.ndarray = field(default_factory=lambda: np.zeros(0, np.uint8))
     info: np.ndarray = field(default_factory=lambda: np.zeros((0, N_TEX_INFO), np.int32))
     names: tuple[str, ...] = ()
+
+    def with_min_filter(self, code: int) -> Textures:
+        """The same textures with every sampler's minFilter set to ``code``; FILTER_LINEAR
+        reads only full-size texels, which plain supersampling turns into a reference."""
+        info = self.info.copy()
+        info[:, TI_MIN_FILTER] = code
+        return replace(self, info=info)
 
 
 @dataclass(frozen=True)

@@ -11,7 +11,8 @@ import re
 
 from rich.markup import escape
 
-# C0 and C1 controls, DEL, and the bidirectional overrides that reorder what is shown
+# control characters (U+0000–U+001F, DEL, U+0080–U+009F) and the bidirectional overrides
+# that reorder what is shown
 _CONTROLS = re.compile("[\x00-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
 
 

@@ -6,6 +6,7 @@ import numpy as np
 import trimesh
 
 from shots.camera import ORTHOGRAPHIC, Camera
+from shots.gltf.textures import textures_from_codes
 from shots.look import Environment, Ground, Look
 from shots.render import prepare_scene, render_frame
 from shots.scene import (
@@ -123,12 +124,14 @@ def pixel_centres(camera: Camera) -> tuple[np.ndarray, np.ndarray]:
     return x, y
 
 
-def single_texture(rgba: np.ndarray, wrap=WRAP_REPEAT, filter_=FILTER_NEAREST) -> Textures:
-    """An atlas with one texture from an (h, w, 4) array of linear values."""
-    rgba = np.asarray(rgba, np.float32)
-    h, w, _ = rgba.shape
-    info = np.array([[0, w, h, wrap, wrap, filter_]], np.int32)
-    return Textures(texels=rgba.reshape(-1, 4), info=info, names=("t0",))
+def single_texture(rgba: np.ndarray, wrap=WRAP_REPEAT, filter_=FILTER_NEAREST,
+                   srgb: bool = False) -> Textures:  # fmt: skip
+    """An atlas with one texture from (h, w, 4) values in [0, 1] (stored as 8-bit codes,
+    rounded) or uint8 codes; ``filter_`` magnifies and minifies (no mipmap lookups)."""
+    rgba = np.asarray(rgba)
+    if rgba.dtype != np.uint8:
+        rgba = np.rint(np.clip(rgba, 0.0, 1.0) * 255.0).astype(np.uint8)
+    return textures_from_codes([(rgba, srgb, (wrap, wrap, filter_, filter_))])
 
 
 def textured_table(row: np.ndarray, slots: dict[int, int], uv_transform=None) -> MaterialTable:

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import re
 import shlex
+import tomllib
 import typing
 from pathlib import Path
 
@@ -29,10 +30,18 @@ def readme() -> str:
 
 
 def cli_commands() -> dict:
-    """The click commands of the typer app, by name."""
+    """The click commands of the typer app, by name; a group's as "group command"."""
     group = typer.main.get_command(app)
     context = group.context_class(group, info_name="shots")
-    return {name: group.get_command(context, name) for name in group.list_commands(context)}
+    commands = {}
+    for name in group.list_commands(context):
+        command = group.get_command(context, name)
+        if hasattr(command, "list_commands"):  # a group such as `shots preset`
+            commands.update({f"{name} {sub}": command.get_command(context, sub)
+                             for sub in command.list_commands(context)})
+        else:
+            commands[name] = command
+    return commands
 
 
 def section(text: str, heading: str) -> str:
@@ -61,6 +70,8 @@ def shots_invocations(text: str) -> list[list[str]]:
 def check_invocation(words: list[str], commands: dict) -> None:
     assert len(words) > 1, f"'{' '.join(words)}' names no command"
     name = words[1]
+    if len(words) > 2 and f"{name} {words[2]}" in commands:  # a group's command
+        name, words = f"{name} {words[2]}", [words[0], f"{name} {words[2]}", *words[3:]]
     assert name in commands, f"'{' '.join(words)}': shots has no command {name!r} " \
                              f"(commands: {', '.join(commands)})"
     known = {"--help"}
@@ -188,10 +199,23 @@ def test_every_builtin_preset_is_listed(readme):
         assert presets.load_preset(name).description in rows[0]
 
 
-def toml_example(readme: str) -> str:
+def toml_examples(readme: str) -> list[str]:
     blocks = re.findall(r"^```toml\n(.*?)^```", section(readme, "Walkthrough"), re.S | re.M)
-    assert len(blocks) == 1, "expected one TOML example in the walkthrough"
-    return blocks[0]
+    assert len(blocks) == 2, "expected two TOML examples in the walkthrough (style, publishing)"
+    return blocks
+
+
+def toml_example(readme: str) -> str:
+    return toml_examples(readme)[0]
+
+
+def test_walkthrough_publishing_example_is_the_demo_preset(readme):
+    # the publishing example shows presets/demo-thumbnail.toml's keys with their values
+    example = tomllib.loads(toml_examples(readme)[1])
+    shipped = tomllib.loads((presets.builtin_folder() / "demo-thumbnail.toml").read_text())
+    assert example["extends"] == shipped["extends"] and example["publish"] == shipped["publish"]
+    for shown, real in zip(example["derivatives"], shipped["derivatives"], strict=True):
+        assert shown.items() <= real.items(), (shown, real)
 
 
 def test_walkthrough_preset_loads_and_extends_thumbnail(readme, tmp_path):

@@ -110,7 +110,8 @@ def test_box_silhouette_matches_its_projection(tmp_path):
     assert image[mask][:, :3].mean() > 20
 
 
-@pytest.mark.parametrize("args", [["render", "missing.glb"], ["render", "x.gltf", "--size", "0x5"]])
+@pytest.mark.parametrize("args", [["render", "missing.glb"], ["render", "x.gltf", "--size", "0x5"],
+                                  ["render", "x.gltf", "--samples", "0"]])
 def test_bad_input_is_one_line_exit_2(tmp_path, args):
     result = runner.invoke(app, args + ["-o", str(tmp_path)])
     assert result.exit_code == 2
@@ -136,3 +137,20 @@ def test_variants_rendered_into_one_folder_keep_their_own_files(tmp_path):
         return rgba[covered, :3].mean()
 
     assert covered_mean("wool_sofa-oat-still.png") > covered_mean("wool_sofa-slate-still.png") + 30
+
+
+def test_samples_option_is_the_preset_key(tmp_path):
+    # --samples N and `samples = N` in a preset are the same fixed count (adaptive sampling off)
+    model = SAMPLES / "Box.gltf"
+    preset = tmp_path / "fixed.toml"
+    preset.write_text('extends = "still"\n[image]\nwidth = 40\nheight = 30\nsamples = 2\n')
+    outputs = {}
+    for name, args in {"option": ["-p", "still", "--size", "40x30", "--samples", "2"],
+                       "key": ["-p", str(preset)],
+                       "other": ["-p", "still", "--size", "40x30", "--samples", "3"]}.items():
+        result = runner.invoke(app, ["render", str(model), "-o", str(tmp_path / name), *args])
+        assert result.exit_code == 0, result.output
+        [png] = (tmp_path / name).glob("*.png")
+        outputs[name] = np.asarray(Image.open(png))
+    assert np.array_equal(outputs["option"], outputs["key"])
+    assert not np.array_equal(outputs["option"], outputs["other"])

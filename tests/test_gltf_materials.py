@@ -15,10 +15,12 @@ from gltf_builder import GltfBuilder, quad
 from shots.errors import GltfError
 from shots.gltf import load_scene
 from shots.gltf.materials import texture_transform
+from shots.kernels.texture import NO_FOOTPRINT, sample_texture
 from shots.scene import (
     ALPHA_MASK,
     FILTER_LINEAR,
     FILTER_NEAREST,
+    LINEAR_MIPMAP_LINEAR,
     P_ALPHA_CUTOFF,
     P_ALPHA_MODE,
     P_ATTENUATION_B,
@@ -53,8 +55,11 @@ from shots.scene import (
     T_SHEEN_COLOR,
     T_SPECULAR_COLOR,
     T_TRANSMISSION,
+    TI_BYTES,
+    TI_CHANNELS,
     TI_HEIGHT,
     TI_MAG_FILTER,
+    TI_MIN_FILTER,
     TI_OFFSET,
     TI_WIDTH,
     TI_WRAP_S,
@@ -75,6 +80,16 @@ def load_with(tmp_path, material: dict | None = None, builder: GltfBuilder | Non
     mesh = b.mesh(P, IDX, normals=N, uv0=UV, material=mat)
     b.scene([b.node(mesh=mesh), *extra_nodes])
     return load_scene(b.write_glb(tmp_path / "m.glb"))
+
+
+def texel_value(scene, texture: int) -> np.ndarray:
+    """The decoded RGBA of texel (0, 0) of a texture, as the renderer's lookup returns it."""
+    out = np.zeros(4)
+    info = scene.textures.info
+    u = 0.5 / info[texture, TI_WIDTH]
+    v = 0.5 / info[texture, TI_HEIGHT]
+    sample_texture(scene.textures.texels, info, texture, u, v, NO_FOOTPRINT, out)
+    return out
 
 
 def iec_decode(code: int) -> float:
@@ -167,9 +182,9 @@ def test_texture_rows_start_at_the_image_top(tmp_path):
     tex = b.image_png(CORNERS)
     scene = load_with(tmp_path, {"pbrMetallicRoughness": {"baseColorTexture": {"index": tex}}}, b)
     info = scene.textures.info[scene.materials.texture[0, T_BASE_COLOR]]
-    assert (info[TI_WIDTH], info[TI_HEIGHT]) == (2, 2)
-    texels = scene.textures.texels[info[TI_OFFSET] : info[TI_OFFSET] + 4]
-    np.testing.assert_allclose(texels, [[1, 0, 0, 1], [0, 1, 0, 1], [0, 0, 1, 1], [1, 1, 1, 1]])
+    assert (info[TI_WIDTH], info[TI_HEIGHT], info[TI_CHANNELS], info[TI_BYTES]) == (2, 2, 4, 1)
+    codes = scene.textures.texels[info[TI_OFFSET] : info[TI_OFFSET] + 16].reshape(4, 4)
+    np.testing.assert_array_equal(codes, CORNERS.reshape(4, 4))
     # and the quad's vertex at world top-left (0,1,0) carries uv (0,0), the red texel
     top_left = np.flatnonzero(np.all(scene.positions == [0, 1, 0], axis=1))[0]
     np.testing.assert_array_equal(scene.uv[0, top_left], [0, 0])
@@ -184,8 +199,8 @@ def test_colour_textures_are_srgb_decoded_and_data_textures_linear(tmp_path):
     scene = load_with(tmp_path, {"pbrMetallicRoughness": {
         "baseColorTexture": {"index": tex}, "metallicRoughnessTexture": {"index": tex}}}, b)
     t = scene.materials.texture[0]
-    srgb = scene.textures.texels[scene.textures.info[t[T_BASE_COLOR], TI_OFFSET]]
-    linear = scene.textures.texels[scene.textures.info[t[T_METALLIC_ROUGHNESS], TI_OFFSET]]
+    srgb = texel_value(scene, t[T_BASE_COLOR])
+    linear = texel_value(scene, t[T_METALLIC_ROUGHNESS])
     np.testing.assert_allclose(srgb, [iec_decode(255), iec_decode(64), iec_decode(192),
                                       128 / 255], rtol=1e-6)
     np.testing.assert_allclose(linear[1:3], [0.251, 0.753], atol=5e-4)
@@ -206,10 +221,10 @@ def test_srgb_slots(tmp_path):
             "KHR_materials_sheen": {"sheenColorTexture": ref},
             "KHR_materials_transmission": {"transmissionTexture": ref},
             "KHR_materials_clearcoat": {"clearcoatTexture": ref}}}, b)
-    t, info, texels = scene.materials.texture[0], scene.textures.info, scene.textures.texels
+    t, info = scene.materials.texture[0], scene.textures.info
 
     def red(slot):
-        return texels[info[t[slot], TI_OFFSET], 0]
+        return texel_value(scene, t[slot])[0]
 
     for slot in (T_EMISSIVE, T_SPECULAR_COLOR, T_SHEEN_COLOR):
         assert red(slot) == pytest.approx(iec_decode(128), rel=1e-6)
@@ -218,6 +233,8 @@ def test_srgb_slots(tmp_path):
     row = scene.materials.params[0]
     assert row[P_NORMAL_SCALE] == 0.5 and row[P_OCCLUSION_STRENGTH] == 0.25
     assert len(info) == 2  # one image, decoded once per colour space
+    # ... and stored once per colour space, however many slots use it
+    assert len(set(info[:, TI_OFFSET])) == 2
 
 
 def test_sampler_codes(tmp_path):
@@ -235,6 +252,8 @@ def test_sampler_codes(tmp_path):
         WRAP_CLAMP, WRAP_MIRROR, FILTER_NEAREST)
     assert (second[TI_WRAP_S], second[TI_WRAP_T], second[TI_MAG_FILTER]) == (
         WRAP_REPEAT, WRAP_REPEAT, FILTER_LINEAR)
+    # minFilter undefined: the spec's "auto filtering"; we pick trilinear
+    assert first[TI_MIN_FILTER] == second[TI_MIN_FILTER] == LINEAR_MIPMAP_LINEAR
 
 
 def test_texture_transform_worked_example():

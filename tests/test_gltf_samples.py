@@ -15,7 +15,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from scenes import look, render
 
+from shots.camera import ORTHOGRAPHIC, Camera
+from shots.colour import quantize, to_display
 from shots.gltf import load_scene
 from shots.gltf.accessors import AccessorReader
 from shots.gltf.container import read_document
@@ -279,3 +282,21 @@ def test_cameras_sample():
     for c in cams:
         np.testing.assert_allclose(c.world[:3, 3], [0.5, 0.5, 3.0])
         np.testing.assert_allclose(c.world[:3, :3], np.eye(3))
+
+
+def test_texture_linear_interpolation_happens_after_srgb_decoding():
+    # TextureLinearInterpolationTest (its README: "linear texture interpolation is performed on
+    # linear values, i.e. after sRGB decoding"): the right sphere samples its 2×1 sRGB emissive
+    # texture (black, green 255) halfway between the texels, u = 0.5, with a LINEAR sampler;
+    # decoded first (IEC 61966-2-1) that is linear 0.5, the left sphere's plain emissive factor
+    # (0, 0.5, 0), i.e. display code 188; interpolating codes would give 128 (linear 0.216)
+    camera = Camera(eye=(0.0, -1.0, 5.0), target=(0.0, -1.0, 0.0), up=(0.0, 1.0, 0.0),
+                    width=96, height=32, kind=ORTHOGRAPHIC, ymag=1.2)  # fmt: skip
+    image = render(scene_of("TextureLinearInterpolationTest"), camera, look())
+    # sphere centres x = ∓1.5 → columns (1 ∓ 1.5 / 3.6) · 48; row 16 is y = −1
+    left, right = image[14:18, 26:30], image[14:18, 66:70]
+    np.testing.assert_allclose(left[..., :3], np.broadcast_to([0.0, 0.5, 0.0], left[..., :3].shape),
+                               atol=1e-6)  # fmt: skip
+    np.testing.assert_allclose(right[..., :3], left[..., :3], atol=2e-3)
+    codes = quantize(to_display(image, tone_map="none"))
+    assert np.all(codes[14:18, 66:70, 1] == 188) and np.all(codes[14:18, 26:30, 1] == 188)

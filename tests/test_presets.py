@@ -58,7 +58,8 @@ def test_shipped_presets_say_what_they_promise():
     assert (thumbnail.image.width, thumbnail.image.height) == (512, 512)
     assert thumbnail.background.kind == "transparent"
     assert thumbnail.ground.kind == "shadow_catcher"
-    assert thumbnail.image.samples <= 16  # a CPU renderer: modest samples
+    assert thumbnail.image.samples == 0  # adaptive: samples where the noise is
+    assert thumbnail.image.max_samples <= 256  # a CPU renderer: a modest ceiling
     for frames in (24, 36, 72):
         [shot] = load_preset(f"turntable-{frames}").shots
         assert shot.kind == "turntable" and shot.frames == frames
@@ -139,6 +140,15 @@ def test_with_image_size_keeps_everything_else():
         base.with_image_size(0, 120)
 
 
+def test_forced_samples_turn_adaptivity_off_and_keep_the_rest():
+    base = load_preset("thumbnail")
+    forced = base.with_samples(1024)
+    assert base.image.samples == 0 and forced.image.samples == 1024
+    assert forced.image.model_dump(exclude={"samples"}) == base.image.model_dump(exclude={"samples"})
+    with pytest.raises(PresetError, match=r"image: must be at most 4096, got 5000"):
+        base.with_samples(5000)
+
+
 SHOT = 'name = "t"\nkind = "turntable"\n'
 BROKEN = {
     "unknown key": (f"[[shots]]\n{SHOT}frame = 10\n",
@@ -150,7 +160,13 @@ BROKEN = {
     "negative size": ("[image]\nheight = -5\n", "image.height: must be at least 1, got -5"),
     "fill above one": (f"[[shots]]\n{SHOT}fill = 1.5\n",
                        "shots[0].fill: must be at most 1.0, got 1.5"),
-    "no samples": ("[image]\nsamples = 0\n", "image.samples: must be at least 1, got 0"),
+    "negative samples": ("[image]\nsamples = -1\n", "image.samples: must be at least 0, got -1"),
+    "noise target of zero": ("[image]\nnoise_target = 0.0\n",
+                             "image.noise_target: must be at least 0.1, got 0.0"),
+    "too few minimum samples": ("[image]\nmin_samples = 4\n",
+                                "image.min_samples: must be at least 8, got 4"),
+    "minimum above maximum": ("[image]\nmin_samples = 64\nmax_samples = 32\n",
+                              "image: min_samples (64) must not exceed max_samples (32)"),
     "unknown shot kind": ('[[shots]]\nname = "t"\nkind = "turntabel"\n',
                           "shots[0].kind: 'turntabel' is not a kind of shot; did you mean "
                           "'turntable'? ('views', 'turntable', 'orbit', 'path', 'file_camera')"),

@@ -24,10 +24,10 @@ from scenes import (
 )
 
 from shots.camera import Camera
-from shots.colour import quantize, srgb_to_linear, to_display
+from shots.colour import quantize, to_display
 from shots.kernels import ground as gk
 from shots.kernels import lights as lk
-from shots.kernels.texture import sample_texture, wrap_coord
+from shots.kernels.texture import NO_FOOTPRINT, sample_texture, wrap_coord
 from shots.look import DIRECTIONAL, Environment, Ground, Light
 from shots.render import pack_lights
 from shots.scene import (
@@ -217,7 +217,7 @@ def test_texture_transform_rotation():
     rot, scale, offset = math.pi / 2, 0.5, (0.0, 1.0)
     c, s = math.cos(rot), math.sin(rot)
     uv_transform = np.array([[c * scale, s * scale, offset[0]], [-s * scale, c * scale, offset[1]]])
-    colours = np.arange(16, dtype=np.float32).reshape(4, 4)  # texel (col, row) → 4·row + col
+    colours = np.arange(16, dtype=np.float32).reshape(4, 4) * 16 / 255  # (col, row) → 4·row + col
     texels = np.stack([colours, np.zeros_like(colours), np.zeros_like(colours),
                        np.ones_like(colours)], -1)  # fmt: skip
     table = textured_table(unlit(), {T_BASE_COLOR: 0}, uv_transform=uv_transform)
@@ -227,7 +227,7 @@ def test_texture_transform_rotation():
     expected = {(0, 0): (0, 3), (0, 1): (0, 2), (1, 1): (1, 2), (1, 0): (1, 3)}
     for (r, c_), (tc, tr) in expected.items():
         block = image[r * 8 : r * 8 + 8, c_ * 8 : c_ * 8 + 8, 0]
-        assert np.all(block == 4 * tr + tc)
+        np.testing.assert_allclose(block * 255 / 16, 4 * tr + tc, atol=1e-4)
 
 
 def test_wrap_modes():
@@ -238,20 +238,21 @@ def test_wrap_modes():
                               (1.3, WRAP_MIRROR, 0.7), (1.3, WRAP_CLAMP, 1.0),
                               (-0.4, WRAP_CLAMP, 0.0)]:  # fmt: skip
         assert wrap_coord(x, mode) == pytest.approx(expected)
-    # the same folds on a 10-texel row sampled at texel centres (value = texel index)
-    row = np.stack([np.arange(10.0)] + [np.zeros(10)] * 3, -1)[None]
+    # the same folds on a 10-texel row sampled at texel centres (value = texel index × 20 / 255)
+    row = np.stack([np.arange(10.0) * 20 / 255] + [np.zeros(10)] * 3, -1)[None]
     out = np.zeros(4)
     for u, mode, texel in [(2.25, WRAP_REPEAT, 2), (-0.35, WRAP_REPEAT, 6), (-0.35, WRAP_MIRROR, 3),
                            (1.25, WRAP_MIRROR, 7), (1.35, WRAP_CLAMP, 9), (-0.45, WRAP_CLAMP, 0)]:  # fmt: skip
         tex = single_texture(row, wrap=mode, filter_=FILTER_NEAREST)
-        sample_texture(tex.texels, tex.info, 0, u, 0.5, out)
-        assert out[0] == texel, (u, mode)
+        sample_texture(tex.texels, tex.info, 0, u, 0.5, NO_FOOTPRINT, out)
+        assert out[0] * 255 / 20 == pytest.approx(texel), (u, mode)
     # bilinear (spec §Samplers LINEAR): halfway between texel centres 3 and 4, and across the seam
     lin = single_texture(row, wrap=WRAP_REPEAT, filter_=FILTER_LINEAR)
-    sample_texture(lin.texels, lin.info, 0, 0.4, 0.5, out)
-    assert out[0] == pytest.approx(3.5)
-    sample_texture(lin.texels, lin.info, 0, 1.0, 0.5, out)  # halfway between texel 9 and texel 0
-    assert out[0] == pytest.approx(4.5)
+    sample_texture(lin.texels, lin.info, 0, 0.4, 0.5, NO_FOOTPRINT, out)
+    assert out[0] * 255 / 20 == pytest.approx(3.5)
+    # halfway between texel 9 and texel 0
+    sample_texture(lin.texels, lin.info, 0, 1.0, 0.5, NO_FOOTPRINT, out)
+    assert out[0] * 255 / 20 == pytest.approx(4.5)
 
 
 def test_metal_rough_channels_are_linear_and_not_swapped():
@@ -268,9 +269,8 @@ def test_metal_rough_channels_are_linear_and_not_swapped():
 
 def test_emissive_texture_is_not_decoded_twice():
     # Spec §Materials (emissiveTexture is sRGB): emissive-only quad, texture code 128 (decoded once
-    # into the atlas by the loader, IEC 61966-2-1), factor 1, no tone map → output code 128
-    code = srgb_to_linear(128 / 255)
-    tex = single_texture(np.array([[[code, code, code, 1.0]]]))
+    # by the texture lookup, IEC 61966-2-1), factor 1, no tone map → output code 128
+    tex = single_texture(np.array([[[128, 128, 128, 255]]], np.uint8), srgb=True)
     row = material(P_BASE_R=[0.0, 0.0, 0.0], P_METALLIC=0.0, P_EMISSIVE_R=[1.0, 1.0, 1.0],
                    P_SPECULAR=0.0)  # fmt: skip
     scene = quad(size=2.0, textures=tex, table=textured_table(row, {T_EMISSIVE: 0}))

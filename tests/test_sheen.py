@@ -229,18 +229,20 @@ def test_sheen_brightens_the_rim_and_changes_nothing_where_it_is_zero():
 
 def test_sheen_textures_multiply_the_factors():
     # KHR_materials_sheen: sheenColor = factor × sheenColorTexture.rgb and sheenRoughness =
-    # factor × sheenRoughnessTexture.a (alpha, not a colour channel); the renders agree bit for
-    # bit with untextured factors of the same products
+    # factor × sheenRoughnessTexture.a (alpha, not a colour channel); the renders agree with
+    # untextured factors of the same products (to float32 rounding of the 8-bit texel values)
     camera = ortho_camera(16, half_height=1.05)
     look_ = look(Light(DIRECTIONAL, intensity=2.0, direction=(-0.6, 0.0, -0.8)), env=GREY_ENV)
     base = (0.3, 0.3, 0.3)
-    texel = np.array([[[0.2, 0.5, 0.8, 0.3]]])
+    texel = np.array([[[51, 128, 204, 77]]], np.uint8)
     textured = sheen_row((1.0, 1.0, 1.0), roughness=1.0, base=base)
     table = textured_table(textured, {T_SHEEN_COLOR: 0, T_SHEEN_ROUGHNESS: 0})
     image = render(sphere(rows=[textured], textures=single_texture(texel), table=table), camera,
                    look_)  # fmt: skip
-    factors = sheen_row(np.float32([0.2, 0.5, 0.8]), roughness=np.float32(0.3), base=base)
-    assert np.array_equal(image, render(sphere(rows=[factors]), camera, look_))
+    factors = sheen_row(np.float32([51, 128, 204]) / 255, roughness=np.float32(77 / 255),
+                        base=base)  # fmt: skip
+    np.testing.assert_allclose(image, render(sphere(rows=[factors]), camera, look_), rtol=1e-5,
+                               atol=1e-7)  # fmt: skip
     rgb_roughness = sheen_row(np.float32([0.2, 0.5, 0.8]), roughness=np.float32(0.8), base=base)
     assert not np.array_equal(image, render(sphere(rows=[rgb_roughness]), camera, look_))
 

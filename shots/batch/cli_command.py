@@ -71,6 +71,10 @@ def batch(
     log_json: Annotated[Path | None, typer.Option(
         "--log-json", metavar="FILE",
         help="Write one JSON event per line to this file.")] = None,
+    dry_run: Annotated[bool, typer.Option(
+        "--dry-run", metavar=FLAG,
+        help="List what would be rendered, skipped and published, with a time estimate "
+             "from a short calibration render; write nothing.")] = False,
     limit: Annotated[list[str] | None, typer.Option(
         "--limit", metavar="KEY=VALUE",
         help="Override a budget of the preset's [limits] (repeatable).")] = None,
@@ -82,6 +86,11 @@ def batch(
     from shots.presets import load_preset
 
     formats = tuple(a.strip() for a in animations.split(",") if a.strip() and a != "none")
+    if dry_run:
+        _dry_run(source, preset, output, limit, variants=variants, force=force,
+                 workers=workers, cluster=cluster, template=template, bits=bits, exr=exr,
+                 animations=formats, fps=fps)
+        return
     try:
         tls = cluster_tls(cluster, tls_ca_file, tls_cert, tls_key)
         chosen = preset_with_limits(load_preset(preset), limit)
@@ -100,6 +109,20 @@ def batch(
     else:
         print_summary(summary, err)
     raise typer.Exit(summary.exit_code)
+
+
+def _dry_run(source, preset, output, limit, **options) -> None:
+    from shots.batch.preview import preview_batch, print_preview
+    from shots.limits import preset_with_limits
+    from shots.presets import load_preset
+
+    try:
+        chosen = preset_with_limits(load_preset(preset), limit)
+        preview = preview_batch(source, chosen, output, **options)
+    except ShotsError as exc:
+        err.print(f"[bold red]error:[/] {literal(str(exc))}", highlight=False, soft_wrap=True)
+        raise typer.Exit(2) from None
+    print_preview(preview, Console(width=max(Console().width, 120)))
 
 
 def cluster_tls(cluster: str | None, ca_file: str | None, cert: str | None, key: str | None):

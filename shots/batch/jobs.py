@@ -13,11 +13,12 @@ import hashlib
 import json
 import math
 import struct
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from urllib.parse import unquote, urlsplit
 
-from shots.presets import FileCameraShot, Preset, ViewsShot
+from shots.presets import Derivative, FileCameraShot, Preset, ViewsShot
+from shots.tags import NO_METADATA, ImageMetadata
 
 DEFAULT_VARIANT = "default"  # the model's own materials, not a KHR_materials_variants variant
 GLB_MAGIC = b"glTF"
@@ -92,14 +93,14 @@ def _external_uris(path: Path) -> set[str]:
 def preset_sha256(preset: Preset) -> str:
     """SHA-256 of the resolved preset as canonical JSON (sorted keys, no spaces).
 
-    The description, the check's tolerances and the limits are left out (they change no
-    pixel); an environment image is represented by its content hash rather than its path, so
-    moving the preset does not re-render a catalog.
+    The description, the check's tolerances, the limits, derivatives and publishing settings
+    are left out (they change no pixel of a master frame: derivatives have keys of their own);
+    an environment image is represented by its content hash rather than its path, so moving
+    the preset does not re-render a catalog.
     """
     data = preset.model_dump(mode="json")
-    data.pop("description", None)
-    data.pop("check", None)
-    data.pop("limits", None)
+    for key in ("description", "check", "limits", "derivatives", "publish"):
+        data.pop(key, None)
     image = data.get("environment", {}).get("image")
     if image:
         data["environment"]["image"] = "sha256:" + sha256_file(Path(image))
@@ -156,6 +157,20 @@ def frame_key(inputs_sha256: str, preset_hash: str, version: str, bits: int, fra
     )
 
 
+def derivative_key(frame_key: str, derivative: Derivative, metadata: dict) -> str:
+    """A derivative's key: its frame's key, the settings that shape its bytes, the metadata
+    written into it and the encoder library's version."""
+    import PIL
+
+    settings = derivative.model_dump(mode="json", exclude={"name", "path", "shots"})
+    return _sha256_json(["derivative", frame_key, settings, metadata, PIL.__version__])
+
+
+def derivatives_for(derivatives: tuple[Derivative, ...], shot: str) -> tuple[Derivative, ...]:
+    """The derivatives made of ``shot``'s frames."""
+    return tuple(d for d in derivatives if d.shots is None or shot in d.shots)
+
+
 def animation_key(frame_keys: list[str], kind: str, settings: dict) -> str:
     """An animation's key: its frames' keys, its format and the encoder settings."""
     return _sha256_json(["animation", kind, settings, frame_keys])
@@ -178,6 +193,8 @@ class RenderTask:
     animated : shots whose every frame goes into an animation; their frames, and the first
         frame of every shot (contact sheet, consistency report), come back as 8-bit codes too,
         so the batch need not decode the PNG files it has just written.
+    derivatives : the preset's derivatives, made of each frame in memory (``shots.derivatives``).
+    metadata : what the derivatives of this model and variant say about themselves.
     """
 
     model: str
@@ -189,10 +206,34 @@ class RenderTask:
     bits: int = 8
     exr: bool = False
     animated: tuple[str, ...] = ()
+    derivatives: tuple[Derivative, ...] = ()
+    metadata: ImageMetadata = NO_METADATA
 
     def wants_codes(self, shot: str, index: int) -> bool:
         """Whether frame ``index`` of ``shot`` comes back with its 8-bit codes."""
         return self.bits == 8 and (index == 0 or shot in self.animated)
+
+
+@dataclass(frozen=True)
+class DeriveTask:
+    """Derivatives to re-make from master frames that are up to date (settings changed).
+
+    ``frames`` are (shot, index, master, names of the derivatives to make); the master is the
+    PNG file's path until ``with_masters`` reads it, just before the task is sent (a cluster's
+    workers may not see the output folder, and only tasks in flight hold their bytes).
+    """
+
+    model: str
+    variant: str
+    frames: tuple[tuple[str, int, Path | bytes, tuple[str, ...]], ...]
+    derivatives: tuple[Derivative, ...]
+    metadata: ImageMetadata = NO_METADATA
+
+    def with_masters(self) -> DeriveTask:
+        """The task with every master's PNG bytes in place of its path."""
+        frames = tuple((shot, index, Path(master).read_bytes() if isinstance(master, Path)
+                        else master, names) for shot, index, master, names in self.frames)
+        return replace(self, frames=frames)
 
 
 @dataclass
@@ -203,10 +244,13 @@ class ModelVariantJob:
     inputs_sha256: str
     variant: str
     pending: list[FrameId] = field(default_factory=list)
+    preset: Preset | None = None  # the model's own (a sidecar merged in), else the batch's
+    preset_sha256: str = ""
 
 
 def chunk_tasks(jobs: list[ModelVariantJob], workers: int, preset: Preset, preset_hash: str,
-                bits: int, exr: bool, animated: tuple[str, ...] = ()) -> list[RenderTask]:
+                bits: int, exr: bool, animated: tuple[str, ...] = (),
+                metadata: dict | None = None) -> list[RenderTask]:
     """Split the pending frames into tasks, largest jobs first.
 
     One worker takes each job whole (a model is loaded once). For several workers, chunks
@@ -214,6 +258,7 @@ def chunk_tasks(jobs: list[ModelVariantJob], workers: int, preset: Preset, prese
     out divided by ``TAIL_SHARE`` × workers, so a large catalog keeps each model in one chunk
     while the last chunks are single frames and the workers finish close together. A worker
     keeps the model it loaded last, so the chunks of a model cost one load per worker.
+    ``metadata`` maps (model, variant) to the ``ImageMetadata`` of its derivatives.
     """
     total = sum(len(job.pending) for job in jobs)
     if total == 0:
@@ -229,8 +274,10 @@ def chunk_tasks(jobs: list[ModelVariantJob], workers: int, preset: Preset, prese
                 stop = start + math.ceil((stop - start) / pieces)
             frames = tuple((f.shot, f.index) for f in job.pending[start:stop])
             tasks.append(
-                RenderTask(job.model, job.inputs_sha256, job.variant, frames, preset, preset_hash,
-                           bits, exr, animated)
+                RenderTask(job.model, job.inputs_sha256, job.variant, frames,
+                           job.preset or preset, job.preset_sha256 or preset_hash,
+                           bits, exr, animated, tuple(preset.derivatives),
+                           (metadata or {}).get((job.model, job.variant), NO_METADATA))
             )
             left -= stop - start
             start = stop

@@ -161,16 +161,57 @@ class Layout:
             text = text[:-4] + "animation.png"
         return text
 
-    def _place(self, template: str, values: dict) -> str:
-        relative = SafeFormatter(FIELDS).vformat(template, (), values)
+    def derivative_path(self, template: DerivativeTemplate, values: dict) -> str:
+        """A derivative's file, relative to ``out_dir``: ``template`` filled with ``values``
+        (the frame's fields, ``name``, ``view`` and the product table's columns)."""
+        return self._place(template.text, {**values, "frame": FrameNumber(values["frame"])},
+                           template.fields, template.source, template.field)
+
+    def _place(self, template: str, values: dict, allowed: tuple[str, ...] = FIELDS,
+               source: str = "--template", field: str | None = None) -> str:
+        where = field or template
+        relative = SafeFormatter(allowed, source).vformat(template, (), values)
         parts = PurePosixPath(relative.replace("\\", "/")).parts
-        if not parts or any(p in ("", ".", "..") for p in parts) or relative.startswith("/"):
-            raise BatchError("--template", self.template, f"gives an unusable path {relative!r}")
+        if ".." in parts:
+            raise BatchError(source, where, f"{relative!r} leaves the output folder")
+        if not parts or any(p in ("", ".") for p in parts) or relative.startswith("/"):
+            raise BatchError(source, where, f"gives an unusable path {relative!r}")
         target = (self.out_dir / Path(*parts)).resolve()
         if not target.is_relative_to(self.out_dir) or target == self.out_dir:
-            raise BatchError("--template", self.template, f"{relative!r} leaves the output folder")
+            raise BatchError(source, where, f"{relative!r} leaves the output folder")
         posix = "/".join(parts)
         if parts[0] in RESERVED or parts[0] in (MANIFEST_FOLDER, DIFFERENCES_FOLDER):
-            raise BatchError("--template", self.template,
-                             f"{posix!r} is where the batch keeps its own files")
+            raise BatchError(source, where, f"{posix!r} is where the batch keeps its own files")
         return posix
+
+
+DERIVATIVE_FIELDS = ("model", "variant", "shot", "frame", "view", "size", "name")
+
+
+@dataclass(frozen=True)
+class DerivativeTemplate:
+    """A derivative's path template, checked: ``source`` and ``field`` name where it was set
+    (the preset file and ``derivatives[i].path``) for messages; ``fields`` are the allowed
+    ones, ``used`` those it names."""
+
+    text: str
+    source: str
+    field: str
+    fields: tuple[str, ...]
+    used: tuple[str, ...]
+
+    @staticmethod
+    def create(text: str, source: str, field: str,
+               product_fields: tuple[str, ...] = ()) -> DerivativeTemplate:
+        """Check the template; BatchError naming ``source`` and ``field`` if it is refused."""
+        allowed = DERIVATIVE_FIELDS + tuple(product_fields)
+        formatter = SafeFormatter(allowed, source)
+        try:
+            used = formatter.check(text)
+        except BatchError as exc:
+            hint = ("; {sku} and the product columns need [publish] products"
+                    if not product_fields and "unknown field" in exc.message else "")
+            raise BatchError(source, field, f"{text!r}: {exc.message}{hint}") from None
+        if text.startswith(("/", "\\")) or (len(text) > 1 and text[1] == ":"):
+            raise BatchError(source, field, f"{text!r} must be relative to the output folder")
+        return DerivativeTemplate(text, source, field, allowed, tuple(used))

@@ -117,6 +117,10 @@ def index_csv_bytes(frames: list[dict], animations: list[dict]) -> bytes:
         writer.writerow({**common, "kind": "png", "path": entry["path"]})
         if entry.get("exr"):
             writer.writerow({**common, "kind": "exr", "path": entry["exr"]})
+        for derived in entry.get("derivatives") or []:
+            writer.writerow({**common, "kind": f"{derived['format']}:{derived['name']}",
+                             "path": derived["path"], "width": derived["width"],
+                             "height": derived["height"], "key": derived["key"]})
     for entry in animations:
         writer.writerow({
             "model": entry["model"], "variant": entry["variant"], "shot": entry["shot"],

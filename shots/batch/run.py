@@ -25,8 +25,8 @@ from pathlib import Path
 import shots
 from shots.batch import encode, jobs, manifest
 from shots.batch.catalog import CatalogModel, find_models
-from shots.batch.jobs import DEFAULT_VARIANT, FrameId, ModelVariantJob, RenderTask
-from shots.batch.layout import CONTACT_SHEET, INDEX_CSV, INDEX_JSON, Layout
+from shots.batch.jobs import DEFAULT_VARIANT, DeriveTask, FrameId, ModelVariantJob, RenderTask
+from shots.batch.layout import CONTACT_SHEET, INDEX_CSV, INDEX_JSON, DerivativeTemplate, Layout
 from shots.batch.progress import Reporter
 from shots.batch.runner import (
     WORKER_DIED,
@@ -36,12 +36,23 @@ from shots.batch.runner import (
     make_runner,
 )
 from shots.batch.sheet import CELL, SheetCell, contact_sheet_bytes, thumbnail
-from shots.batch.worker import TaskResult, exr_available, probe_variants, render_task
+from shots.batch.worker import TaskResult, exr_available, probe_variants, run_task
 from shots.check.judge import mask_rules
 from shots.check.measure import measure_codes
+from shots.derivatives import canvas_size
 from shots.errors import BatchError
 from shots.output import atomic_write_bytes
-from shots.presets import OrbitShot, PathShot, Preset, TurntableShot, load_preset
+from shots.presets import (
+    OrbitShot,
+    PathShot,
+    Preset,
+    TurntableShot,
+    ViewsShot,
+    load_preset,
+    sidecar_for,
+)
+from shots.products import ProductTable, load_products
+from shots.tags import ImageMetadata
 
 VARIANT_CHOICES = ("default", "all")
 LOCK_NAME = ".shots-batch.lock"
@@ -75,6 +86,7 @@ class BatchSummary:
     notes: list[str] = field(default_factory=list)
     report: Path | None = None  # the consistency report (report.md) of the first frames
     flagged: list[tuple[Path, list[str]]] = field(default_factory=list)
+    derivatives_written: int = 0
 
     @property
     def frames_rendered(self) -> int:
@@ -103,6 +115,9 @@ class ModelState:
     """Everything the batch knows about one model while it runs."""
 
     entry: CatalogModel
+    preset: Preset | None = None  # the batch's, or with the model's sidecar merged over it
+    preset_hash: str = ""
+    sidecar: dict | None = None  # the sidecar that applied: its file and SHA-256
     file_sha256: str = ""
     inputs_sha256: str = ""
     old: dict | None = None
@@ -114,6 +129,10 @@ class ModelState:
     entries: dict[FrameId, dict] = field(default_factory=dict)
     pending: set[FrameId] = field(default_factory=set)
     animations: dict[tuple, dict] = field(default_factory=dict)
+    derived: dict[FrameId, list[dict]] = field(default_factory=dict)  # wanted derivatives
+    rederive: dict[FrameId, tuple[str, ...]] = field(default_factory=dict)  # stale, not re-render
+    metadata: dict[str, ImageMetadata] = field(default_factory=dict)  # per variant
+    products: dict[str, dict] = field(default_factory=dict)  # product table row per variant
     pictures: dict[FrameId, object] = field(default_factory=dict)  # 8-bit codes to animate
     warnings: set[str] = field(default_factory=set)
     hints: list[str] = field(default_factory=list)  # shots.hints, from the load or the manifest
@@ -185,6 +204,36 @@ def run_batch(
     A broken model does not raise: it is reported in the summary (``exit_code`` 1).
     """
     started = time.perf_counter()
+    batch = prepare_batch(source, preset, out_dir, variants=variants, force=force,
+                          workers=workers, cluster=cluster, template=template, bits=bits,
+                          exr=exr, animations=animations, fps=fps, threads=threads, pool=pool,
+                          cluster_tls=cluster_tls)
+    with Reporter(quiet=quiet, log_json=Path(log_json) if log_json else None,
+                  console=console) as reporter:
+        summary = batch.run(reporter)
+        summary.seconds = time.perf_counter() - started
+        reporter.event("summary", models=len(summary.models), failed=len(summary.failures),
+                       rendered=summary.frames_rendered, skipped=summary.frames_skipped,
+                       frames_failed=summary.frames_failed,
+                       animations=summary.animations_written,
+                       derivatives=summary.derivatives_written,
+                       seconds=round(summary.seconds, 3), exit_code=summary.exit_code,
+                       failures=[{"model": m, "reason": r} for m, r in summary.failures])
+    return summary
+
+
+def prepare_batch(source, preset, out_dir, *, variants: str = "default", force: bool = False,
+                  workers: int | None = None, cluster: str | None = None,
+                  template: str | None = None, bits: int = 8, exr: bool = False,
+                  animations: tuple[str, ...] = encode.ANIMATION_FORMATS, fps: float = 12.0,
+                  threads: int | None = None, pool: ProcessRunner | None = None,
+                  cluster_tls: ClusterTls | None = None) -> Batch:
+    """Check the options (``run_batch`` explains them) and set a batch up, writing nothing.
+
+    Raises
+    ------
+    BatchError, PresetError : the run cannot start.
+    """
     if variants not in VARIANT_CHOICES:
         raise BatchError("--variants", None, f"expected 'default' or 'all', got {variants!r}")
     if bits not in (8, 16):
@@ -199,23 +248,12 @@ def run_batch(
                                                f"(known: {', '.join(encode.ANIMATION_FORMATS)})")
     if not isinstance(preset, Preset):
         preset = load_preset(preset)
-    batch = Batch(
+    return Batch(
         preset=preset, layout=Layout.create(Path(out_dir), template),
         models=find_models(Path(source)), variants=variants, force=force,
         workers=workers, cluster=cluster, bits=bits, exr=exr, animations=tuple(animations),
         fps=float(fps), threads=threads, pool=pool, cluster_tls=cluster_tls,
     )
-    with Reporter(quiet=quiet, log_json=Path(log_json) if log_json else None,
-                  console=console) as reporter:
-        summary = batch.run(reporter)
-        summary.seconds = time.perf_counter() - started
-        reporter.event("summary", models=len(summary.models), failed=len(summary.failures),
-                       rendered=summary.frames_rendered, skipped=summary.frames_skipped,
-                       frames_failed=summary.frames_failed,
-                       animations=summary.animations_written,
-                       seconds=round(summary.seconds, 3), exit_code=summary.exit_code,
-                       failures=[{"model": m, "reason": r} for m, r in summary.failures])
-    return summary
 
 
 class Batch:
@@ -251,13 +289,20 @@ class Batch:
         # first frames measured and shrunk as they arrive, so the end of the run reads no PNG
         self.measured: dict[Path, object] = {}
         self.thumbnails: dict[Path, object] = {}
-        self.states = [ModelState(entry) for entry in models]
+        self.states = [self._with_sidecar(ModelState(entry, preset, self.preset_hash))
+                       for entry in models]
         self.by_key = {state.key: state for state in self.states}
         self.owners: dict[str, str] = {}  # output path → model that writes it
         self.animations_written = 0
+        self.derivatives_written = 0
         self.runner = None
         self.reporter: Reporter | None = None
+        self.dry_run = False  # plan only: nothing is written (shots.batch.preview)
         self._check_template()
+        self.products: ProductTable | None = (
+            load_products(preset.publish.products) if preset.publish.products else None
+        )
+        self.derivative_templates = self._derivative_templates()
 
     # --- set-up -------------------------------------------------------------------------------
 
@@ -289,6 +334,51 @@ class Batch:
             if needed and name not in fields:
                 raise BatchError("--template", self.layout.template,
                                  f"needs {{{name}}}: {why}")
+
+    def _with_sidecar(self, state: ModelState) -> ModelState:
+        """Merge the model's ``<model>.shots.toml`` over the preset, if it has one; a broken
+        sidecar stops the batch here, before anything renders."""
+        sidecar = sidecar_for(state.entry.path)
+        if not sidecar.is_file():
+            return state
+        if not self.preset.source:
+            raise BatchError(sidecar, None, "a sidecar needs the batch preset as a file or name")
+        merged = load_preset(self.preset.source, sidecar)
+        # the budgets stay the batch's, with any --limit overrides it was given
+        state.preset = merged.model_copy(update={"limits": self.preset.limits})
+        state.preset._source = merged.source
+        state.preset_hash = jobs.preset_sha256(state.preset)
+        state.sidecar = {"file": sidecar.name, "sha256": jobs.sha256_file(sidecar)}
+        return state
+
+    def _derivative_templates(self) -> dict[str, DerivativeTemplate]:
+        """Check every derivative's path template now, so a bad one stops the batch before
+        anything renders: known fields only, inside the output folder, and enough fields to
+        tell this catalog's files apart."""
+        product_fields = self.products.fields if self.products else ()
+        templates = {}
+        for index, derivative in enumerate(self.preset.derivatives):
+            where = f"derivatives[{index}].path"
+            template = DerivativeTemplate.create(derivative.path, self.preset.source, where,
+                                                 product_fields)
+            used = set(template.used)
+            shots = derivative.shots or list(self.counts)
+            needs = [
+                ({"model", "sku"}, len(self.states) > 1, "the catalog has several models"),
+                ({"shot"}, len(shots) > 1, "it applies to several shots"),
+                ({"frame", "view"}, any(self.counts[s] > 1 for s in shots),
+                 "a shot has several frames"),
+                ({"variant", "sku"}, self.variant_choice == "all", "--variants all is given"),
+            ]
+            for names, needed, why in needs:
+                if needed and not used & names:
+                    either = " or ".join(f"{{{n}}}" for n in sorted(names))
+                    raise BatchError(self.preset.source, where,
+                                     f"{derivative.path!r} needs {either}: {why}")
+            sample = dict.fromkeys(template.fields, "x") | {"frame": 0}
+            self.layout.derivative_path(template, sample)  # escapes the output folder: refused
+            templates[derivative.name] = template
+        return templates
 
     def _lock(self):
         """Hold an exclusive lock on the output folder; the OS drops it even on SIGKILL."""
@@ -340,10 +430,25 @@ class Batch:
         return BatchSummary(
             out_dir=self.layout.out_dir, models=[self._outcome(s) for s in self.states],
             animations_written=self.animations_written, seconds=0.0, index=index,
+            derivatives_written=self.derivatives_written,
             contact_sheet=sheet, notes=self.notes,
             report=report.markdown_path if report else None,
             flagged=report.flagged if report else [],
         )
+
+    def plan_only(self, reporter: Reporter) -> None:
+        """Hash, read the manifests and plan every model, as ``run`` does, writing nothing:
+        afterwards each state's ``pending`` and ``rederive`` say what a run would do."""
+        self.reporter, self.dry_run = reporter, True
+        try:
+            for state in self.states:
+                self._inspect(state)
+            self._probe_variants()
+            for state in self.states:
+                self._plan(state)
+        finally:
+            if self.runner is not None and self.runner is not self.pool:
+                self.runner.close()
 
     def _check_consistency(self):
         """Write the consistency report and review page (shots.check) over the first frame of
@@ -411,7 +516,7 @@ class Batch:
             if isinstance(old.get("variants"), list):
                 state.available = [str(v) for v in old["variants"]]
             state.warnings.update(str(w) for w in old.get("warnings", []))
-            if old.get("preset_sha256") == self.preset_hash and isinstance(old.get("hints"), list):
+            if old.get("preset_sha256") == state.preset_hash and isinstance(old.get("hints"), list):
                 state.hints = [str(h) for h in old["hints"]]
         if self.variant_choice == "default":
             state.variants = [DEFAULT_VARIANT]
@@ -424,8 +529,8 @@ class Batch:
         if not unknown:
             return
         runner = self._get_runner(self._frame_total())
-        futures = {runner.submit(probe_variants, s.key, s.inputs_sha256, self.preset,
-                                 self.preset_hash): s
+        futures = {runner.submit(probe_variants, s.key, s.inputs_sha256, s.preset,
+                                 s.preset_hash): s
                    for s in unknown}
         pending = set(futures)
         while pending:
@@ -452,23 +557,30 @@ class Batch:
                 old_frames[FrameId(entry["variant"], entry["shot"], entry["frame"])] = entry
             except (KeyError, TypeError):
                 continue
+        if not self._find_products(state):
+            return
         paths = {}
         for variant in state.variants:
             for frame in jobs.frame_ids(self.preset, variant):
                 state.planned.append(frame)
-                state.keys[frame] = jobs.frame_key(state.inputs_sha256, self.preset_hash,
+                state.keys[frame] = jobs.frame_key(state.inputs_sha256, state.preset_hash,
                                                    self.version, self.bits, frame)
         try:  # a model (or variant) named like the batch's own files fails alone
             for frame in state.planned:
                 paths[frame] = self.layout.frame_path(state.name, frame.variant, frame.shot,
                                                       frame.index, self.size)
+                state.derived[frame] = self._derivatives_of(state, frame)
             clash = self._claim(state, list(paths.values()) + self._animation_paths(state))
         except BatchError as exc:
             clash = f"{state.entry.listed_as}: {exc.message}; rename the model or change " \
                     f"--template"
+        derivative_paths = [d["path"] for wanted in state.derived.values() for d in wanted]
         if clash:
             self._fail(state, clash, state.planned)
             return
+        clash = self._claim(state, derivative_paths)
+        if clash:  # the preset's templates collide: no model's files would be safe
+            raise BatchError(self.preset.source, "derivatives", clash)
         state.paths = paths
         for frame in state.planned:
             entry = old_frames.get(frame)
@@ -477,10 +589,71 @@ class Batch:
                 state.skipped += 1
                 self.reporter.frame("skipped", state.name, frame.variant, frame.shot,
                                     frame.index, paths[frame])
+                stale = self._stale_derivatives(state, frame, entry)
+                if stale:
+                    state.rederive[frame] = stale
+                    state.pending.add(frame)
+                else:
+                    entry["derivatives"] = state.derived[frame]
             else:
                 state.pending.add(frame)
-        if not state.pending:
+        if not state.pending and not self.dry_run:
             self._finish(state)
+
+    def _find_products(self, state: ModelState) -> bool:
+        """Each variant's product table row and metadata; a missing row fails the model (it
+        is reported, not named after its file)."""
+        copyright = self.preset.publish.copyright
+        for variant in state.variants:
+            row = {}
+            if self.products is not None:
+                row = self.products.lookup(state.entry.listed_as, variant)
+                if row is None:
+                    self._fail(state, f"{state.entry.listed_as}: variant {variant!r} is not in "
+                                      f"the product table {self.products.path}", [])
+                    return False
+            state.products[variant] = row
+            state.metadata[variant] = ImageMetadata(
+                product_code=row.get("sku", ""), title=row.get("title", ""),
+                variant=variant if variant != DEFAULT_VARIANT else "", copyright=copyright)
+        return True
+
+    def _derivatives_of(self, state: ModelState, frame: FrameId) -> list[dict]:
+        """The derivatives wanted of a frame: name, format, path, size and key."""
+        wanted = []
+        width, height = self.preset.image.width, self.preset.image.height
+        metadata = state.metadata[frame.variant].as_dict()
+        for derivative in jobs.derivatives_for(tuple(self.preset.derivatives), frame.shot):
+            size = canvas_size(width, height, derivative.longest_side, derivative.box)
+            values = {**state.products[frame.variant], "model": state.name,
+                      "variant": frame.variant, "shot": frame.shot, "frame": frame.index,
+                      "view": self._view_name(frame), "size": f"{size[0]}x{size[1]}",
+                      "name": derivative.name}
+            wanted.append({
+                "name": derivative.name, "format": derivative.format,
+                "path": self.layout.derivative_path(self.derivative_templates[derivative.name],
+                                                    values),
+                "width": size[0], "height": size[1],
+                "key": jobs.derivative_key(state.keys[frame], derivative, metadata),
+            })
+        return wanted
+
+    def _view_name(self, frame: FrameId) -> str:
+        """A named view's name, else the frame number (three digits)."""
+        shot = next(s for s in self.preset.shots if s.name == frame.shot)
+        return shot.views[frame.index] if isinstance(shot, ViewsShot) else f"{frame.index:03d}"
+
+    def _stale_derivatives(self, state: ModelState, frame: FrameId, entry: dict) -> tuple:
+        """Names of the derivatives of an up-to-date frame that need making again."""
+        old = {d.get("name"): d for d in entry.get("derivatives") or [] if isinstance(d, dict)}
+        stale = []
+        for wanted in state.derived[frame]:
+            have = old.get(wanted["name"])
+            if (self.force or have is None or have.get("key") != wanted["key"]
+                    or have.get("path") != wanted["path"]
+                    or not self.layout.absolute(wanted["path"]).is_file()):
+                stale.append(wanted["name"])
+        return tuple(stale)
 
     def _animation_paths(self, state: ModelState) -> list[str]:
         return [
@@ -498,6 +671,8 @@ class Batch:
                     f"template {self.layout.template!r} (variant names alike once made safe?)")
         for path in wanted:
             owner = self.owners.get(path)
+            if owner == state.entry.listed_as:
+                return f"{state.entry.listed_as}: two of its outputs would be {path!r}"
             if owner is not None:
                 return (f"{state.entry.listed_as}: its output {path!r} would overwrite one of "
                         f"{owner} (two models with the same name?)")
@@ -516,25 +691,37 @@ class Batch:
             return bool(exr) and _intact(self.layout.absolute(exr), entry.get("exr_sha256"))
         return True
 
-    def _tasks(self) -> list[RenderTask]:
-        variant_jobs = []
+    def _tasks(self) -> list[RenderTask | DeriveTask]:
+        variant_jobs, derive = [], []
         for state in self.states:
             if state.error is not None or not state.pending:
                 continue
             for variant in state.variants:
                 pending = [f for f in state.planned if f in state.pending and f.variant == variant]
-                if pending:
-                    variant_jobs.append(
-                        ModelVariantJob(state.key, state.inputs_sha256, variant, pending)
-                    )
+                render = [f for f in pending if f not in state.rederive]
+                if render:
+                    variant_jobs.append(ModelVariantJob(state.key, state.inputs_sha256, variant,
+                                                        render, state.preset, state.preset_hash))
+                stale = [f for f in pending if f in state.rederive]
+                if stale:
+                    derive.append(self._derive_task(state, variant, stale))
         if not variant_jobs:
-            return []
+            return derive
         # chunks are cut for the runner's size: a cluster's threads, else the local workers
         workers = self._get_runner(sum(len(j.pending) for j in variant_jobs)).workers
+        metadata = {(s.key, v): m for s in self.states for v, m in s.metadata.items()}
         return jobs.chunk_tasks(variant_jobs, workers, self.preset, self.preset_hash, self.bits,
-                               self.exr, self.animated)
+                                self.exr, self.animated, metadata) + derive
 
-    def _render(self, tasks: list[RenderTask]) -> None:
+    def _derive_task(self, state: ModelState, variant: str, frames: list[FrameId]) -> DeriveTask:
+        """Re-make stale derivatives from the masters on disk."""
+        return DeriveTask(
+            state.key, variant,
+            tuple((f.shot, f.index, self.layout.absolute(state.paths[f]), state.rederive[f])
+                  for f in frames),
+            tuple(self.preset.derivatives), state.metadata[variant])
+
+    def _render(self, tasks: list[RenderTask | DeriveTask]) -> None:
         if not tasks:
             return
         runner = self._get_runner(sum(len(t.frames) for t in tasks))
@@ -549,7 +736,9 @@ class Batch:
                 if state.error is not None:
                     self._fail(state, state.error, self._frames_of(task))
                     continue
-                in_flight[runner.submit(render_task, task)] = task
+                if isinstance(task, DeriveTask):
+                    task = task.with_masters()
+                in_flight[runner.submit(run_task, task)] = task
             if not in_flight:
                 break
             done, _ = runner.wait_any(set(in_flight))
@@ -564,10 +753,10 @@ class Batch:
                 self._take(task, result)
 
     @staticmethod
-    def _frames_of(task: RenderTask) -> list[FrameId]:
-        return [FrameId(task.variant, shot, index) for shot, index in task.frames]
+    def _frames_of(task: RenderTask | DeriveTask) -> list[FrameId]:
+        return [FrameId(task.variant, frame[0], frame[1]) for frame in task.frames]
 
-    def _take(self, task: RenderTask, result: TaskResult) -> None:
+    def _take(self, task: RenderTask | DeriveTask, result: TaskResult) -> None:
         """Write a finished chunk's files, then the model's manifest."""
         state = self.by_key[task.model]
         state.add_time("load_s", result.load_seconds)
@@ -582,6 +771,10 @@ class Batch:
             return
         for image in result.images:
             frame = FrameId(task.variant, image.shot, image.index)
+            if image.png is None:  # derivatives re-made; the master was up to date
+                self._write_derivatives(state, frame, image)
+                state.pending.discard(frame)
+                continue
             start = time.perf_counter()
             path = state.paths[frame]
             atomic_write_bytes(self.layout.absolute(path), image.png)
@@ -594,6 +787,7 @@ class Batch:
                 self._keep_codes(state, frame, self.layout.absolute(path), image.codes)
             state.entries[frame] = self._frame_entry(state, frame, image, path, exr_path,
                                                      write_seconds)
+            self._write_derivatives(state, frame, image)
             state.pending.discard(frame)
             state.rendered += 1
             state.add_time("render_s", image.render_seconds)
@@ -605,6 +799,19 @@ class Batch:
             self._write_manifest(state)
         if not state.pending:
             self._finish(state)
+
+    def _write_derivatives(self, state: ModelState, frame: FrameId, image) -> None:
+        """Write the derivatives a worker made of a frame and list them in its entry."""
+        start = time.perf_counter()
+        for wanted in state.derived[frame]:
+            data = image.derivatives.get(wanted["name"])
+            if data is not None:
+                atomic_write_bytes(self.layout.absolute(wanted["path"]), data)
+                self.derivatives_written += 1
+        state.entries[frame]["derivatives"] = state.derived[frame]
+        state.rederive.pop(frame, None)
+        state.add_time("derive_s", image.derive_seconds)
+        state.add_time("write_s", time.perf_counter() - start)
 
     def _moves(self, state: ModelState) -> bool:
         """Whether the model has animations to make once its frames are in."""
@@ -685,7 +892,8 @@ class Batch:
         state.done = True
         self._show_hints(state)
         self._write_manifest(state)
-        self.reporter.model_done(state.name, failed=False)
+        self.reporter.model_done(state.name, failed=False, rendered=state.rendered,
+                                 skipped=state.skipped)
 
     def _animate(self, state: ModelState, variant: str, shot: str, old: dict) -> None:
         frames = [FrameId(variant, shot, k) for k in range(self.counts[shot])]
@@ -739,12 +947,14 @@ class Batch:
             "sha256": state.file_sha256,
             "inputs_sha256": state.inputs_sha256,
             "preset": self.preset.name,
-            "preset_sha256": self.preset_hash,
+            "preset_sha256": state.preset_hash,
+            "sidecar": state.sidecar,
             "renderer_version": self.version,
             "settings": {"bits": self.bits, "exr": self.exr, "template": self.layout.template,
                          "animations": list(self.animations), "fps": self.fps},
             "variants": state.available or [],
             "rendered_variants": state.variants,
+            "products": state.products if self.products is not None else None,
             "warnings": sorted(state.warnings),
             "hints": sorted(state.hints),
         }
@@ -776,7 +986,7 @@ class Batch:
                 entry = state.entries[frame]
                 frames.append({"model": state.name, **{k: entry[k] for k in (
                     "variant", "shot", "frame", "view", "path", "exr", "key", "seed", "width",
-                    "height")}})
+                    "height")}, "derivatives": entry.get("derivatives") or []})
             for key in sorted(state.animations):
                 animations.append({"model": state.name, **state.animations[key]})
         header = {

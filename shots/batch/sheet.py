@@ -11,6 +11,7 @@ import numpy as np
 from PIL import Image, ImageDraw, ImageFont
 
 from shots.batch.encode import flatten, read_rgba8
+from shots.tags import tag_png
 
 THUMB = 160  # pixels, the longer side of a thumbnail
 PAD = 8
@@ -63,7 +64,7 @@ def contact_sheet_bytes(rows: list[list[SheetCell]], background=CELL) -> bytes:
                           fill=INK, font=font)
     buffer = io.BytesIO()
     sheet.save(buffer, format="PNG", optimize=False)
-    return buffer.getvalue()
+    return tag_png(buffer.getvalue())
 
 
 def _read_thumbnail(path: Path, background) -> Image.Image | None:

@@ -21,7 +21,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from shots.batch.jobs import DEFAULT_VARIANT, RenderTask
+from shots.batch.jobs import DEFAULT_VARIANT, DeriveTask, RenderTask, derivatives_for
 
 WATCHDOG_SECONDS = 0.5
 GRACE_SECONDS = 30.0  # past a model's time limit, a worker stuck in a kernel is ended
@@ -48,12 +48,14 @@ class RenderedImage:
     view: str
     camera: dict
     seed: int
-    png: bytes
+    png: bytes | None  # None: derivatives only (a DeriveTask)
     exr: bytes | None
     render_seconds: float
     encode_seconds: float
     codes: object = None  # (h, w, 4) uint8 display codes when the task wants them
     albedo: dict | None = None  # rendered and albedo luminance (shots.albedo.exposure_reading)
+    derivatives: dict = field(default_factory=dict)  # derivative name → file bytes
+    derive_seconds: float = 0.0
 
 
 @dataclass
@@ -184,6 +186,38 @@ def render_task(task: RenderTask) -> TaskResult:
     return result
 
 
+def run_task(task: RenderTask | DeriveTask) -> TaskResult:
+    """What a worker runs for any task of a batch."""
+    return render_task(task) if isinstance(task, RenderTask) else derive_task(task)
+
+
+def derive_task(task: DeriveTask) -> TaskResult:
+    """Re-make derivatives of frames already rendered, from their master PNG bytes."""
+    from shots.output import decode_png
+
+    result = TaskResult(task.model, task.variant)
+    by_name = {d.name: d for d in task.derivatives}
+    try:
+        for shot, index, png, names in task.frames:
+            start = time.perf_counter()
+            made = make_derivatives(decode_png(png), [by_name[n] for n in names], task.metadata)
+            result.images.append(RenderedImage(
+                shot=shot, index=index, view="", camera={}, seed=0, png=None, exr=None,
+                render_seconds=0.0, encode_seconds=0.0, derivatives=made,
+                derive_seconds=time.perf_counter() - start))
+    except Exception as exc:  # reported per model; the batch goes on with the others
+        result.images = []
+        result.failure = _failure(exc)
+    return result
+
+
+def make_derivatives(codes, derivatives, metadata) -> dict[str, bytes]:
+    """{name: file bytes} of each derivative of one master frame's display codes."""
+    from shots.derivatives import make_derivative
+
+    return {d.name: make_derivative(codes, d, metadata) for d in derivatives}
+
+
 def _loaded_model(model: str, hashes: tuple[str, str], preset, result: TaskResult) -> dict:
     """The fixed-up scene and its planned frames, from the cache when the model (and the
     preset, ``hashes`` = (inputs hash, preset hash)) are the same."""
@@ -294,11 +328,15 @@ def _render_one(prepared, frame, task: RenderTask) -> RenderedImage:
     png = encode_png(codes)
     exr = exr_bytes(rgba) if task.exr else None
     albedo = exposure_reading(prepared, frame.camera, rgba, frame.look.exposure)
+    encoded = time.perf_counter()
+    derivatives = make_derivatives(codes, derivatives_for(task.derivatives, frame.shot),
+                                   task.metadata)
     return RenderedImage(
         shot=frame.shot, index=frame.index, view=frame.view, camera=frame.to_json(),
         seed=frame.seed, png=png, exr=exr, render_seconds=rendered - start,
-        encode_seconds=time.perf_counter() - rendered,
+        encode_seconds=encoded - rendered,
         codes=codes if task.wants_codes(frame.shot, frame.index) else None, albedo=albedo,
+        derivatives=derivatives, derive_seconds=time.perf_counter() - encoded,
     )
 
 

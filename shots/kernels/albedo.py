@@ -43,7 +43,8 @@ def base_colours(tri, b1, b2, directions, verts, faces, materials, texels, tex_i
             continue
         surf = np.empty(N_SURFACE)
         work = np.zeros(N_WORK)
-        mesh_surface(k, b1[i], b2[i], directions[i, 0], directions[i, 1], directions[i, 2],
+        # cone 0: the finest texture level (the albedo is read once, not filtered over a footprint)
+        mesh_surface(k, b1[i], b2[i], directions[i, 0], directions[i, 1], directions[i, 2], 0.0,
                      verts, faces, materials, texels, tex_info, surf, work)
         out[i, A_R] = surf[S_BASE_R]
         out[i, A_G] = surf[S_BASE_G]

@@ -39,13 +39,18 @@ from shots.kernels.layout import (
     F_WIDTH,
     F_YMAG,
     W_ACC,
+    W_CONE,
+    W_SPREAD,
 )
 from shots.kernels.raystack import (
     N_RAY,
     R_CAMERA,
+    R_CONE,
+    R_CONE_HIT,
     R_COVER,
     R_D,
     R_O,
+    R_SPREAD,
     R_TMIN,
     R_W,
     STACK_RAYS,
@@ -72,13 +77,17 @@ def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env_ma
     # many that see only the background never touch the stack
     ray = stack[STACK_RAYS - 1]
     set_ray(ray, ox, oy, oz, dx, dy, dz, 1.0, 1.0, 1.0, 1.0, 0, 0.0, 0.0, 0.0, 0.0, 1.0)
+    ray[R_CONE], ray[R_SPREAD] = pixel_cone(frame)
     sp = np.int64(0)  # not Literal[int](0), which type inference would compile shade_hit for
     while True:
         rox, roy, roz = ray[R_O], ray[R_O + 1], ray[R_O + 2]
         rdx, rdy, rdz = ray[R_D], ray[R_D + 1], ray[R_D + 2]
         camera = ray[R_CAMERA] != 0.0
+        work[W_CONE] = ray[R_CONE]
+        work[W_SPREAD] = ray[R_SPREAD]
         t, what = find_surface(bvh, scene, ground, rox, roy, roz, rdx, rdy, rdz, ray[R_TMIN],
                                camera, surf, work, tstack)  # fmt: skip
+        ray[R_CONE_HIT] = ray[R_CONE] + ray[R_SPREAD] * t  # the rays this hit spawns start here
         if what == 2 and camera and int(ground[G_KIND]) == GROUND_CATCHER:
             # invisible floor: its shadow becomes coverage of black (premultiplied: alpha only);
             # the rest of the ray shows the background (nothing stands below the floor)
@@ -114,6 +123,23 @@ def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env_ma
         sp -= 1
         for c in range(N_RAY):  # element copy: a slice copy between views of one array allocates
             ray[c] = stack[sp, c]
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def pixel_cone(frame):
+    """(width at the eye, spread angle) of the cone of one camera sample.
+
+    A perspective pixel subtends α = atan(2 tan(yfov/2) / height) (Akenine-Möller et al. 2019,
+    Ray Tracing Gems ch. 20, "pixel spread angle"); an orthographic pixel is a tube 2·ymag/height
+    wide. Each of the pixel's N stratified samples stands for 1/N of its area, so its cone is
+    1/√N of the pixel across: the samples together then average the texture over the pixel
+    filter once, and many samples converge to plain supersampling instead of blurring twice
+    (measured on the demo sofa in bench/texture_filtering.py).
+    """
+    height = frame[F_HEIGHT] * math.sqrt(max(frame[F_SAMPLES], 1.0))
+    if frame[F_ORTHO] != 0.0:
+        return 2.0 * frame[F_YMAG] / height, 0.0
+    return 0.0, math.atan(2.0 * frame[F_TAN_Y] / height)
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)

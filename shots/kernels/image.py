@@ -5,6 +5,15 @@ Inputs are few wide arrays (``shots.kernels.layout``); the BVH and the scene go 
     scene = (verts, faces, materials, texels, tex_info)          packed by shots.render
 Everything is borrowed (``shots.kernels.borrow``) at the top of each parallel work item; pixels
 are independent, and tiles are dealt to work items round-robin, each with its own scratch.
+
+Sampling contract (relied on by the shading kernels)
+    One call traces one *stratified set* of ``frame[F_SAMPLES]`` camera samples in every active
+    pixel; the kernels below receive ``sample`` (0 … F_SAMPLES − 1, the index within that set)
+    and stratify their per-hit rays over the set with ``spread_count`` / ``spread_stratum`` /
+    ``next_pair`` (``shots.kernels.sampling``). Adaptive sampling (``shots.sampling_control``)
+    calls this kernel once per pass, each pass one such set with its own ``frame[F_SEED]`` (the
+    frame's seed with the pass number folded in), so every pass is stratified on its own and
+    no two passes share random numbers.
 """
 
 from __future__ import annotations
@@ -43,15 +52,18 @@ WORK_ITEMS = 256  # parallel items; tiles are dealt round-robin so threads stay 
 # No fastmath here: numba passes it on to the callees it compiles, and contracting the
 # watertight edge functions into FMAs lets rays through shared edges (Woop et al. 2013).
 @njit(cache=True, parallel=True, error_model="numpy")
-def render_image(out, frame, lights, env_map, ground, bvh, scene):
-    """Render every pixel into ``out``.
+def render_image(out, frame, lights, env_map, ground, bvh, scene, active, counts):
+    """Render one stratified set of samples in every active pixel into ``out``.
 
     Parameters
     ----------
-    out : (h, w, 4) float32, receives premultiplied linear RGBA.
+    out : (h, w, 4) float32, receives the set's mean premultiplied linear RGBA in active
+        pixels (the others are left as they are).
     frame : (N_FRAME,) float64 camera, settings, background and SH (``shots.kernels.layout``).
     lights : (k, N_LIGHT_COLS) float64; env_map : (eh, ew, 3) float32 linear radiance;
     ground : (N_GROUND,) float64; bvh, scene : see the module docstring.
+    active : (h, w) uint8, non-zero where the pixel takes this set.
+    counts : (h, w) int32, each active pixel's count grows by the samples it traced.
 
     The parallel loop only allocates each work item's scratch and calls ``render_tiles``: numba's
     parallel passes and type inference work on this function's whole body, so it stays small.
@@ -65,12 +77,13 @@ def render_image(out, frame, lights, env_map, ground, bvh, scene):
         b_scene = (borrow(scene[0]), borrow(scene[1]), borrow(scene[2]), borrow(scene[3]),
                    borrow(scene[4]))  # fmt: skip
         render_tiles(np.int64(item), borrow(out), borrow(frame), borrow(lights), borrow(env_map),
-                     borrow(ground), b_bvh, b_scene, scratch)  # fmt: skip
+                     borrow(ground), b_bvh, b_scene, borrow(active), borrow(counts),
+                     scratch)  # fmt: skip
         owned[3][W_DIM] = 0.0  # the scratch stays owned (alive) until here, past its views
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def render_tiles(item, out, frame, lights, env_map, ground, bvh, scene, scratch):
+def render_tiles(item, out, frame, lights, env_map, ground, bvh, scene, active, counts, scratch):
     """Render the tiles dealt to work item ``item`` (every WORK_ITEMS-th tile from ``item``).
 
     ``scratch`` is (traversal stack, ray stack, two surface records, work record), this item's.
@@ -88,6 +101,8 @@ def render_tiles(item, out, frame, lights, env_map, ground, bvh, scene, scratch)
         y0 = (tile // tiles_x) * TILE
         for j in range(y0, min(y0 + TILE, height)):
             for i in range(x0, min(x0 + TILE, width)):
+                if active[j, i] == 0:
+                    continue
                 pixel = j * width + i
                 for c in range(4):
                     work[W_ACC + c] = 0.0
@@ -102,6 +117,7 @@ def render_tiles(item, out, frame, lights, env_map, ground, bvh, scene, scratch)
                     trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights,
                                  env_map, bvh, scene, ground, pixel, s, stack, surf, surf2,
                                  work, tstack)  # fmt: skip
+                    counts[j, i] += 1
                 for c in range(4):
                     value = work[W_ACC + c] / spp
                     # a degenerate input (NaN normal, zero-area light) must not spread

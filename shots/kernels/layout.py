@@ -48,4 +48,9 @@ W_TEXEL = 4  # (4) last texel sampled
 W_ENV = 8  # (3) last environment look-up
 W_ACC = 11  # (4) premultiplied rgba of the current pixel
 W_DIM = 15  # random-number dimension counter of the current sample
-N_WORK = 16
+
+# --- work: texture footprint of the current ray (ray cones, shots.kernels.surface) -------------
+W_LOD = 16  # (2) per uv set: log2 of the footprint in uv units (a texture adds log2 of its size)
+W_CONE = 18  # cone width at the ray's origin (world units)
+W_SPREAD = 19  # cone spread angle (radians): the width grows by this per unit of distance
+N_WORK = 20

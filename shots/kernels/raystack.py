@@ -17,17 +17,29 @@ R_TMIN = 11
 R_SIGMA = 12  # (3) absorption coefficients of the medium the ray travels in (1/m)
 R_CAMERA = 15  # 1 for camera rays and their straight continuations
 R_START = 16  # (3) where the ray's medium segment began: its un-offset surface point
-N_RAY = 19
+# ray cone (Akenine-Möller et al. 2019, Ray Tracing Gems ch. 20): width w(t) = R_CONE + R_SPREAD·t
+R_CONE = 19  # cone width at the origin (world units)
+R_SPREAD = 20  # spread angle (radians; small-angle: width grows by this per unit distance)
+R_CONE_HIT = 21  # cone width where the ray hit (set by the tracer before the hit spawns rays)
+N_RAY = 22
 STACK_RAYS = 96  # the last row holds the ray being traced
 MIN_WEIGHT = 1e-3  # rays carrying less than this are not traced (their mean is added instead)
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def push_ray(stack, sp, ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, sr, sg, sb, camera):
-    """Push a ray onto the stack; returns the new stack size (rays beyond capacity are dropped)."""
-    if sp >= stack.shape[0] - 1:  # the last row is the current ray
+    """Push a ray onto the stack; returns the new stack size (rays beyond capacity are dropped).
+
+    The ray cone comes from the ray being traced (the last row): a ray spawned at its hit
+    (tmin = 0) starts with the cone's width there; a continuation from the same origin
+    (tmin > 0, behind a BLEND surface) keeps the cone as it is. The spread is kept (surfaces
+    are treated as flat, curvature term β = 0 in the ray-cone model)."""
+    current = stack.shape[0] - 1
+    if sp >= current:  # the last row is the current ray
         return sp
     set_ray(stack[sp], ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, sr, sg, sb, camera)
+    stack[sp, R_CONE] = stack[current, R_CONE] if tmin > 0.0 else stack[current, R_CONE_HIT]
+    stack[sp, R_SPREAD] = stack[current, R_SPREAD]
     return sp + 1
 
 

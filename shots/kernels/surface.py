@@ -22,10 +22,11 @@ from shots.kernels.layout import (
     V_N,
     V_T,
     V_UV0,
+    W_LOD,
     W_TEXEL,
     W_UV,
 )
-from shots.kernels.texture import sample_texture
+from shots.kernels.texture import NO_FOOTPRINT, sample_texture
 from shots.scene import (
     ALPHA_BLEND,
     ALPHA_MASK,
@@ -74,6 +75,8 @@ from shots.scene import (
     T_SPECULAR_COLOR,
     T_THICKNESS,
     T_TRANSMISSION,
+    TI_HEIGHT,
+    TI_WIDTH,
 )
 
 # --- surface record columns (float64) ---------------------------------------------------------
@@ -121,14 +124,24 @@ def sample_slot(materials, texels, tex_info, m, slot, work):
 def sample_slot_texture(materials, texels, tex_info, m, col, tex, work):
     """Texture ``tex`` at the uv of the slot whose columns start at ``col``: its TEXCOORD set
     (work[W_UV:+4] holds both) through its KHR_texture_transform affine map; the texel goes to
-    work[W_TEXEL:+4]."""
-    s = 2 * min(max(int(materials[m, col + SLOT_SET]), 0), 1)
-    u = work[W_UV + s]
-    v = work[W_UV + s + 1]
+    work[W_TEXEL:+4].
+
+    The level of detail adds to the set's log2 footprint (work[W_LOD + set]) half the log2 of
+    the texels per unit of uv area: the texture's size times the affine map's area scale."""
+    s = min(max(int(materials[m, col + SLOT_SET]), 0), 1)
+    u = work[W_UV + 2 * s]
+    v = work[W_UV + 2 * s + 1]
     a = col + SLOT_A
     tu = materials[m, a] * u + materials[m, a + 1] * v + materials[m, a + 2]
     tv = materials[m, a + 3] * u + materials[m, a + 4] * v + materials[m, a + 5]
-    sample_texture(texels, tex_info, tex, tu, tv, work, W_TEXEL)
+    lod = work[W_LOD + s]
+    texels_per_uv = abs(materials[m, a] * materials[m, a + 4] - materials[m, a + 1]
+                        * materials[m, a + 3]) * tex_info[tex, TI_WIDTH] * tex_info[tex, TI_HEIGHT]
+    if lod > NO_FOOTPRINT and texels_per_uv > 0.0:
+        lod += 0.5 * math.log2(texels_per_uv)
+    else:
+        lod = NO_FOOTPRINT
+    sample_texture(texels, tex_info, tex, tu, tv, lod, work, W_TEXEL)
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
@@ -140,13 +153,15 @@ def normalize3(x, y, z):
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_info, surf, work):
+def mesh_surface(k, b1, b2, dx, dy, dz, cone, verts, faces, materials, texels, tex_info, surf,
+                 work):  # fmt: skip
     """Fill ``surf`` for a hit on triangle ``k`` at barycentrics (b1, b2) by a ray along d.
 
     Parameters
     ----------
     k : original triangle index; b1, b2 : barycentrics (hit = (1-b1-b2)p0 + b1 p1 + b2 p2).
     dx, dy, dz : ray direction (unit).
+    cone : width of the ray's cone at the hit (world units); 0 samples textures at a point.
     verts, faces, materials, texels, tex_info : the packed scene (``shots.kernels.layout``).
     surf : (N_SURFACE,) float64 output record; work : (N_WORK,) float64 scratch.
 
@@ -168,11 +183,13 @@ def mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_inf
     e2x = verts[i2, 0] - verts[i0, 0]
     e2y = verts[i2, 1] - verts[i0, 1]
     e2z = verts[i2, 2] - verts[i0, 2]
-    gx, gy, gz, _ = normalize3(e1y * e2z - e1z * e2y, e1z * e2x - e1x * e2z, e1x * e2y - e1y * e2x)
+    gx, gy, gz, area2 = normalize3(e1y * e2z - e1z * e2y, e1z * e2x - e1x * e2z,
+                                   e1x * e2y - e1y * e2x)  # fmt: skip
     front = gx * dx + gy * dy + gz * dz < 0.0
     for a in range(4):
         c = V_UV0 + a
         work[W_UV + a] = b0 * verts[i0, c] + b1 * verts[i1, c] + b2 * verts[i2, c]
+    footprint_lods(k, verts, faces, cone, abs(gx * dx + gy * dy + gz * dz), area2, work)
     nx = b0 * verts[i0, V_N] + b1 * verts[i1, V_N] + b2 * verts[i2, V_N]
     ny = b0 * verts[i0, V_N + 1] + b1 * verts[i1, V_N + 1] + b2 * verts[i2, V_N + 1]
     nz = b0 * verts[i0, V_N + 2] + b1 * verts[i1, V_N + 2] + b2 * verts[i2, V_N + 2]
@@ -340,6 +357,33 @@ def mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_inf
     surf[S_CY] = cy
     surf[S_CZ] = cz
     return m
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def footprint_lods(k, verts, faces, cone, cos_incidence, area2, work):
+    """Per uv set, log2 of the ray cone's footprint measured in uv units, into work[W_LOD:+2].
+
+    Ray cones (Akenine-Möller et al. 2019, "Texture Level of Detail Strategies for Real-Time
+    Ray Tracing", Ray Tracing Gems ch. 20): λ = Δ + log2(w / |n·d|), with
+    Δ = ½ log2(t_a / p_a) the triangle's texel-to-world area ratio. Here t_a is the uv area (the
+    texture multiplies in its own size, ``sample_slot_texture``); ``area2`` is 2 p_a.
+    """
+    if cone <= 0.0 or area2 <= 0.0 or cos_incidence <= 0.0:
+        work[W_LOD] = NO_FOOTPRINT
+        work[W_LOD + 1] = NO_FOOTPRINT
+        return
+    base = math.log2(cone / cos_incidence) - 0.5 * math.log2(area2)
+    i0 = faces[k, 0]
+    i1 = faces[k, 1]
+    i2 = faces[k, 2]
+    for s in range(2):
+        c = V_UV0 + 2 * s
+        du1 = verts[i1, c] - verts[i0, c]
+        dv1 = verts[i1, c + 1] - verts[i0, c + 1]
+        du2 = verts[i2, c] - verts[i0, c]
+        dv2 = verts[i2, c + 1] - verts[i0, c + 1]
+        uv2 = abs(du1 * dv2 - du2 * dv1)  # 2 t_a in uv units
+        work[W_LOD + s] = base + 0.5 * math.log2(uv2) if uv2 > 0.0 else NO_FOOTPRINT
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)

@@ -20,6 +20,7 @@ from shots.kernels.ground import (
     GROUND_NONE,
     intersect_ground,
 )
+from shots.kernels.layout import W_CONE, W_SPREAD
 from shots.kernels.offset import offset_origin_one
 from shots.kernels.surface import (
     S_BASE_B,
@@ -62,6 +63,9 @@ def offset_point(surf, side):
 def find_surface(bvh, scene, ground, ox, oy, oz, dx, dy, dz, t_min, camera, surf, work, tstack):
     """The first surface a ray sees, skipping cut-out and single-sided back-face hits.
 
+    Textures are filtered over the ray's cone: width work[W_CONE] at the origin, growing by
+    work[W_SPREAD] per unit of distance.
+
     Returns
     -------
     t : float, inf on a miss.
@@ -87,7 +91,9 @@ def find_surface(bvh, scene, ground, ox, oy, oz, dx, dy, dz, t_min, camera, surf
                 return tg, 2
         if k < 0:
             return np.inf, 0
-        mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_info, surf, work)
+        cone = work[W_CONE] + work[W_SPREAD] * t  # the ray cone's width at the hit
+        mesh_surface(k, b1, b2, dx, dy, dz, cone, verts, faces, materials, texels, tex_info, surf,
+                     work)  # fmt: skip
         if surf[S_SKIP] == 0.0 and surf[S_OPACITY] > 0.0:
             return t, 1
         t_lo = t * (1.0 + 1e-7) + 1e-9
@@ -136,7 +142,9 @@ def light_through(bvh, scene, ox, oy, oz, dx, dy, dz, t_max, surf, work, tstack)
         )  # fmt: skip
         if k < 0:
             return tr, tg, tb
-        mesh_surface(k, b1, b2, dx, dy, dz, verts, faces, materials, texels, tex_info, surf, work)
+        # point lookups: a shadow ray's cone is not tracked
+        mesh_surface(k, b1, b2, dx, dy, dz, 0.0, verts, faces, materials, texels, tex_info, surf,
+                     work)  # fmt: skip
         a = surf[S_OPACITY]
         through = (1.0 - surf[S_METALLIC]) * surf[S_TRANSMISSION]
         tr *= (1.0 - a) + a * through * surf[S_BASE_R]

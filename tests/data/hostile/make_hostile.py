@@ -130,7 +130,8 @@ def bombs() -> None:
     tree["meshes"][0]["primitives"][0]["mode"] = 5
     write_json("bomb_index_strip.gltf", tree, "accessors[1].count", "over the limit triangles")
 
-    # one 1-bit 4096² PNG (2 KB) used by six texture slots, sRGB and linear: 6 decodes
+    # one 1-bit 4096² PNG (2 KB) used by six texture slots, sRGB and linear: stored once per
+    # colour space as 8-bit grey with mip levels (42 MiB), so refused only under a small budget
     big = png_bytes(np.zeros((4096, 4096), np.uint8), "1")
     tree = tree_of(base())
     tree["images"] = [{"uri": data_uri(big)}]
@@ -142,11 +143,12 @@ def bombs() -> None:
         "emissiveTexture": {"index": 4},
     }]
     tree["meshes"][0]["primitives"][0]["material"] = 0
-    write_json("bomb_texture_reuse.gltf", tree, "textures[4]", "over the limit texture_mb")
-    # a 10000² PNG of 12 KB: under the pixel limit, 381 MiB decoded
+    write_json("bomb_texture_reuse.gltf", tree, "textures[1]", "over the limit texture_mb",
+               {"texture_mb": 32})
+    # a 10000² PNG of 12 KB: under the pixel limit, 127 MiB decoded (8-bit grey, mip levels)
     write_json("bomb_png_10000.gltf",
                textured({"uri": data_uri(png_bytes(np.zeros((10000, 10000), np.uint8), "1"))}),
-               "textures[0]", "over the limit texture_mb")
+               "textures[0]", "over the limit texture_mb", {"texture_mb": 64})
 
     # 1,000 nodes instancing one mesh of 1,000 primitives: 1 M primitive instances
     tree = tree_of(base())
