@@ -54,7 +54,7 @@ def show_version(value: bool) -> None:
 def options(
     version: Annotated[
         bool,
-        typer.Option("--version", callback=show_version, is_eager=True,
+        typer.Option("--version", metavar=FLAG, callback=show_version, is_eager=True,
                      help="Print the version and exit."),
     ] = False,
 ) -> None:
