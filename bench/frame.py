@@ -34,7 +34,6 @@ from shots.kernels.sampling import spread_count
 from shots.planner import plan_frames
 from shots.presets import apply_model_fixes, load_preset
 from shots.render import (
-    MIN_CONTACT_SAMPLES,
     pack_frame,
     pack_ground,
     prepare_scene,
@@ -42,6 +41,7 @@ from shots.render import (
 )
 
 ROOT = Path(__file__).resolve().parents[1]
+CONTACT_RAYS = 2  # environment rays per shadow-catcher hit
 CHUNK = 1 << 20  # primary rays per batch (bounds memory)
 
 
@@ -137,8 +137,9 @@ def shadow_rays(points, normals, look, spp, contact, rng):
             directions.append(d[facing])
             t_max.append(dist[facing] * (1 - 1e-5))
     if contact.any():
-        n = spread_count(max(look.area_light_samples, MIN_CONTACT_SAMPLES), spp)
-        for _ in range(n):
+        # one environment-table ray and one cosine ray per floor hit (shots.kernels.ambient), both
+        # taken here as cosine rays
+        for _ in range(CONTACT_RAYS):
             a, b = rng.random((2, int(contact.sum())))
             r, phi = np.sqrt(a), 2 * np.pi * b
             d = np.stack([r * np.cos(phi), np.sqrt(1 - a), r * np.sin(phi)], 1)  # about +Y

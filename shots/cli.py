@@ -38,9 +38,10 @@ def fail(message: str, code: int = 2) -> None:
     raise typer.Exit(code)
 
 
-def warn(message: str) -> None:
-    """Print one warning line on stderr, unwrapped (a hint must stay greppable as one line)."""
-    err.print(f"[yellow]warning:[/] {literal(message)}", highlight=False, soft_wrap=True)
+def warn(message: str, kind: str = "warning") -> None:
+    """Print one warning line on stderr, unwrapped (a hint must stay greppable as one line);
+    ``kind`` labels it (``"ignored"`` for what the model asks for and is not rendered)."""
+    err.print(f"[yellow]{kind}:[/] {literal(message)}", highlight=False, soft_wrap=True)
 
 
 def show_version(value: bool) -> None:
@@ -128,7 +129,7 @@ def render(
                 scene_choice=parse_scene(scene),
                 variant=variant,
                 on_frame=lambda r: out.print(f"wrote {literal(r.path)}", highlight=False),
-                on_warning=lambda text: warn(f"{model}: {text}"),
+                on_warning=lambda text: warn(f"{model}: {text}", getattr(text, "kind", "warning")),
             )
     except ShotsError as exc:
         fail(str(exc))
@@ -173,7 +174,7 @@ def plan(
         sys.stdout.write(json.dumps(finite_or_null(rows), indent=1, allow_nan=False) + "\n")
         return
     for warning in loaded.warnings:
-        err.print(f"warning: {literal(warning)}", highlight=False)
+        warn(warning, getattr(warning, "kind", "warning"))
     table = Table(title=literal(f"{preset} × {model.name}: {len(rows)} frames"))
     for column in ("shot", "frame", "view", "eye", "target", "up", "lens", "size"):
         table.add_column(column)

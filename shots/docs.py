@@ -65,6 +65,9 @@ KEY_NOTES = {
                              "before the tone map.",
     "LookSettings.tone_map": "How linear light becomes display values: `neutral` is Khronos PBR "
                              "Neutral (base colours kept, highlights rolled off), `none` clips.",
+    "LookSettings.model_lights": "Which lights shine: `rig` the preset's lights only (a model's "
+                                 "own KHR_lights_punctual lights are named and ignored), `model` "
+                                 "the model's lights only (candela, lux), `both` together.",
     "ModelSettings.units": "The unit the model was exported in (glTF says metres); `auto` picks "
                            "the unit that makes the model about a metre across and says so.",
     "ModelSettings.up_axis": "`z` stands a Z-up export upright (glTF says +Y up).",

@@ -5,6 +5,11 @@ Either source becomes one equirectangular radiance map (the kernels look up only
 harmonics (Ramamoorthi & Hanrahan 2001, "An Efficient Representation for Irradiance Environment
 Maps", SIGGRAPH); specular light comes from reflection rays that look the map up directly.
 
+For occluded environment light (``shots.kernels.ambient``) the kernels also draw directions in
+proportion to the map's radiance: ``sampling_table`` builds the piecewise-constant 2D distribution
+of Pharr, Jakob & Humphreys, "Physically Based Rendering" (3rd ed.), §14.2.4 "Infinite Area
+Lights" (the same table for the gradient, built from its image).
+
 Map convention (``shots.kernels.texture.equirect_uv``): +Y up, row 0 at the zenith, the map's
 horizontal centre along −Z, u growing toward +X; ``rotation`` turns it about +Y.
 """
@@ -196,3 +201,33 @@ def environment_map(env: Environment) -> tuple[np.ndarray, np.ndarray]:
     base = load_hdr_image(str(env.image)) if env.image else gradient_map(env)
     radiance = np.ascontiguousarray(base * np.float32(env.intensity), np.float32)
     return radiance, irradiance_coefficients(radiance, env.rotation)
+
+
+def sampling_table(radiance: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Piecewise-constant 2D distribution over an equirect map, ∝ brightest channel × sin θ.
+
+    Pharr, Jakob & Humphreys, PBR 3rd ed., §13.6.7 "Piecewise-Constant 2D Distributions" and
+    §14.2.4 "Infinite Area Lights": the sin θ weight makes the density uniform in solid angle
+    where the map is, so the poles' squeezed pixels are not over-sampled. The brightest channel
+    (not luminance) keeps the density above zero wherever any channel is lit.
+
+    Returns
+    -------
+    rows : (h, w) float64, each row's cumulative distribution over its pixels (last column 1).
+    marginal : (h,) float64, the cumulative distribution over rows (last entry 1).
+    A black map gets the uniform density.
+    """
+    h, w, _ = radiance.shape
+    sin_theta = np.sin((np.arange(h) + 0.5) / h * np.pi)
+    weight = radiance.max(axis=-1).astype(np.float64) * sin_theta[:, None]
+    weight = np.maximum(weight, 0.0)
+    if not weight.sum() > 0.0:
+        weight = np.broadcast_to(sin_theta[:, None], (h, w)).copy()
+    row_sums = weight.sum(axis=1)
+    rows = np.cumsum(weight, axis=1)
+    safe = np.where(row_sums > 0.0, row_sums, 1.0)
+    rows = np.where(row_sums[:, None] > 0.0, rows / safe[:, None], (np.arange(w) + 1.0) / w)
+    rows[:, -1] = 1.0
+    marginal = np.cumsum(row_sums) / row_sums.sum()
+    marginal[-1] = 1.0
+    return np.ascontiguousarray(rows), np.ascontiguousarray(marginal)

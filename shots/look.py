@@ -96,6 +96,7 @@ class Look:
     area_light_samples: int = 4  # shadow rays per area light per hit
     glossy_samples: int = 4  # reflection rays for rough surfaces
     max_depth: int = 4  # reflection/refraction recursion limit
+    diffuse_bounces: int = 1  # bounces of diffuse light between the model's parts
     exposure: float = 0.0  # stops
     tone_map: str = "neutral"
     seed: int = 0

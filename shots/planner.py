@@ -119,7 +119,8 @@ def plan_frames(preset: Preset, scene: Scene, shots: list[str] | None = None) ->
         index = preset.shots.index(shot)
         for k, (view, camera) in enumerate(shot_cameras(shot, index, preset, extent, scene)):
             seed = frame_seed(preset.image.seed, shot.name, k)
-            look = resolve_look(preset, camera, extent.centre, extent.radius, seed)
+            look = resolve_look(preset, camera, extent.centre, extent.radius, seed,
+                                scene.lights)
             frames.append(Frame(shot.name, k, camera, look, seed, view))
     return frames
 

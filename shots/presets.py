@@ -51,6 +51,7 @@ from shots.colour import TONE_MAPS
 from shots.errors import PresetError
 from shots.limits import Limits
 from shots.look import Background, Environment, Ground, Light, Look
+from shots.model_lights import frame_lights, note_ignored_lights
 from shots.scene import Scene
 from shots.tables import Table
 
@@ -125,6 +126,10 @@ class ImageSettings(Table):
 class LookSettings(Table):
     exposure: float = Field(0.0, ge=-20.0, le=20.0)  # stops
     tone_map: Literal[TONE_MAPS] = "neutral"
+    model_lights: Literal["rig", "model", "both"] = "rig"  # shots.model_lights
+    diffuse_bounces: int = Field(1, ge=0, le=8, description=(
+        "Bounces of diffuse light between the model's parts (a coloured panel tints its "
+        "neighbours); 0 keeps only the environment, blocked by the model, and the lights."))
 
 
 class ModelSettings(Table):
@@ -982,6 +987,7 @@ def apply_model_fixes(scene: Scene, preset: Preset) -> Scene:
             notes.append(f"model units: largest extent {extent:.4g} read as {UNIT_NAMES[units]}")
     scale = UNIT_SCALES[units]
     rotation = Z_UP_TO_Y_UP if settings.up_axis == "z" else np.eye(3)
+    scene = note_ignored_lights(scene, preset.look.model_lights)
     if scale == 1.0 and settings.up_axis == "y":
         return scene
     return _transformed(scene, rotation, scale, notes)
@@ -1018,18 +1024,23 @@ def _transformed(scene: Scene, rotation: np.ndarray, scale: float, notes: list[s
 # --- resolving a preset's look for one camera -------------------------------------------------
 
 
-def resolve_look(preset: Preset, camera: Camera, centre, radius: float, seed: int) -> Look:
-    """The world-space ``Look`` of one frame: the rig placed around this camera's view.
+def resolve_look(preset: Preset, camera: Camera, centre, radius: float, seed: int,
+                 model_lights=()) -> Look:
+    """The world-space ``Look`` of one frame: the rig placed around this camera's view, and
+    the model's own lights when ``[look] model_lights`` asks for them.
 
     Parameters
     ----------
     centre : (3,) the model's centre (the lights aim at it); radius : its bounding radius.
+    model_lights : the scene's ``FileLight``s (KHR_lights_punctual).
     """
     centre = np.asarray(centre, np.float64)
     radius = radius if radius > 0.0 else 1.0
     environment = preset.environment
     return Look(
-        lights=tuple(place_light(light, camera, centre, radius) for light in preset.lights),
+        lights=frame_lights(preset.look.model_lights,
+                            tuple(place_light(light, camera, centre, radius)
+                                  for light in preset.lights), model_lights),
         environment=Environment(
             zenith=environment.zenith, horizon=environment.horizon, nadir=environment.nadir,
             intensity=environment.intensity, image=environment.image,
@@ -1044,6 +1055,7 @@ def resolve_look(preset: Preset, camera: Camera, centre, radius: float, seed: in
         area_light_samples=preset.image.light_samples,
         glossy_samples=preset.image.gloss_samples,
         max_depth=preset.image.bounces,
+        diffuse_bounces=preset.look.diffuse_bounces,
         exposure=preset.look.exposure,
         tone_map=preset.look.tone_map,
         seed=seed,

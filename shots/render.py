@@ -16,17 +16,21 @@ Image formation
     number is a hash of (seed, pixel, sample, dimension), the pass number folded into the seed:
     reruns are bit-identical and do not depend on the number of threads.
 Sample counts per hit
-    ``area_light_samples`` (shadow rays per area light), ``glossy_samples`` (reflection rays of a
-    glossy surface) and the floor's contact rays (at least 4) are counts for one camera sample.
+    ``area_light_samples`` (shadow rays per area light) and ``glossy_samples`` (reflection rays of
+    a glossy surface) are counts for one camera sample.
     With several camera samples the pixel's samples share one stratified set: each hit casts
     ceil(count / samples) rays in its own cells of a pixel-wide grid, so a pixel still gets at
     least max(count, samples) well-spread rays for the cost of about one per hit.
-Approximations (Whitted-style, documented so nobody mistakes them for bugs)
-    Diffuse environment light is its 9-term SH irradiance, unshadowed except by the occlusion
-    texture. Glossy lobes rougher than 0.3 (dielectric) to 0.6 (metal) take the SH-blurred
-    environment along the mirror direction instead of rays. Shadow rays pass transmissive
-    surfaces tinted, without refraction (no caustics). Rays leaving glass see the environment,
-    not the background. The shadow catcher counts the sky as even for its contact shadow.
+Environment light and bounces (``shots.kernels.ambient``)
+    Diffuse light (and glossy lobes rougher than 0.3 for a dielectric to 0.6 for a metal) is the
+    environment's SH irradiance minus what the model blocks, plus ``look.diffuse_bounces``
+    bounces of light between its parts: one environment sample and one BSDF sample per hit,
+    combined by multiple importance sampling. The shadow catcher's contact shadow uses the same
+    estimator. One indirect ray adds at most a luminance of ``INDIRECT_CLAMP``.
+Approximations (documented so nobody mistakes them for bugs)
+    The ambient base is the 9-term SH irradiance (the blocked part uses the map itself).
+    Shadow rays pass transmissive surfaces tinted, without refraction (no caustics). Rays
+    leaving glass see the environment, not the background.
 """
 
 from __future__ import annotations
@@ -41,7 +45,7 @@ from shots import sampling_control
 from shots.accel import Bvh, build_bvh
 from shots.camera import ORTHOGRAPHIC, Camera
 from shots.colour import srgb_to_linear
-from shots.environment import environment_map
+from shots.environment import environment_map, sampling_table
 from shots.errors import RenderError
 from shots.kernels import ground as gk
 from shots.kernels import image, layout
@@ -75,8 +79,14 @@ LIGHT_KINDS = {
     AREA: lk.KIND_AREA,
 }
 SHADOW_NOISE_FLOOR = 0.05  # shadow-catcher alpha below this is sampling noise (see below)
-MIN_CONTACT_SAMPLES = 4  # environment rays per shadow-catcher hit (soft contact shadow)
 CONTACT_REACH = 0.25  # contact-shadow rays reach this fraction of the model's box diagonal
+# Largest luminance one indirect ray (light that scattered off two or more surfaces: a diffuse
+# bounce, a reflection of a reflection) may add to a camera sample, linear before exposure. Rare
+# paths that carry more (a bounce that finds a small bright highlight) are fireflies; at the
+# default 16 samples one ray then moves a pixel by at most 0.25, and no indirect light in a
+# catalog look comes near it. Light seen after one reflection (a sun in chrome) is not clamped.
+# Its bias is measured in tests/test_ambient.py.
+INDIRECT_CLAMP = 4.0
 
 
 @dataclass(frozen=True)
@@ -205,8 +215,10 @@ def pack_ground(ground: Ground, bounds: np.ndarray, camera: Camera) -> np.ndarra
 
 
 @functools.lru_cache(maxsize=8)
-def _environment(env: Environment) -> tuple[np.ndarray, np.ndarray]:
-    return environment_map(env)
+def _environment(env: Environment) -> tuple[tuple[np.ndarray, ...], np.ndarray]:
+    """((radiance, sampling rows, marginal) for the kernels, SH coefficients)."""
+    radiance, sh = environment_map(env)
+    return (radiance, *sampling_table(radiance)), sh
 
 
 def background_colours(look: Look) -> np.ndarray:
@@ -223,7 +235,7 @@ def pack_frame(
     camera: Camera, look: Look, see_through: bool, sh: np.ndarray, bounds: np.ndarray
 ) -> np.ndarray:
     """(N_FRAME,) float64: camera, image and sampling settings, background, SH irradiance and
-    the scene's (2, 3) bounds."""
+    the scene's (2, 3) bounds (the box that ``shots.kernels.ambient.hemisphere_clear`` tests)."""
     row = np.zeros(layout.N_FRAME, np.float64)
     row[layout.F_EYE : layout.F_EYE + 3] = camera.eye
     basis = camera.basis()
@@ -243,16 +255,18 @@ def pack_frame(
     row[layout.F_SEED] = int(look.seed) & 0xFFFFFFFF
     row[layout.F_SEE_THROUGH] = 1.0 if see_through else 0.0
     row[layout.F_BACKGROUND] = BACKGROUNDS[look.background.kind]
-    row[layout.F_CONTACT_SAMPLES] = max(int(look.area_light_samples), MIN_CONTACT_SAMPLES)
     colours = background_colours(look)
     row[layout.F_BG_TOP : layout.F_BG_TOP + 3] = colours[0]
     row[layout.F_BG_BOTTOM : layout.F_BG_BOTTOM + 3] = colours[1]
     row[layout.F_SH : layout.F_SH + 27] = np.asarray(sh, np.float64).ravel()
     row[layout.F_ENV_ROTATION] = look.environment.rotation
-    # Only nearby occluders darken the floor through contact rays: an unbounded reach lets distant
-    # floor points catch the product with a rare grazing ray, which speckles the whole floor.
+    # Only nearby blockers darken the floor: an unbounded reach lets distant floor points catch
+    # the product with a rare grazing ray, which speckles the whole floor.
     diagonal = float(np.linalg.norm(np.subtract(bounds[1], bounds[0])))
     row[layout.F_CONTACT_REACH] = CONTACT_REACH * diagonal
+    row[layout.F_BOX : layout.F_BOX + 6] = np.asarray(bounds, np.float64).ravel()
+    row[layout.F_DIFFUSE_BOUNCES] = max(int(look.diffuse_bounces), 0)
+    row[layout.F_INDIRECT_CLAMP] = INDIRECT_CLAMP
     return row
 
 
@@ -280,9 +294,9 @@ def render_frame_counted(
     as the kernel counted them."""
     if camera.width < 1 or camera.height < 1:
         raise RenderError("<camera>", "size", f"bad image size {camera.width}x{camera.height}")
-    radiance, sh = _environment(look.environment)
+    env, sh = _environment(look.environment)
     frame = pack_frame(camera, look, prepared.see_through, sh, prepared.bounds)
-    arrays = (pack_lights(look.lights), radiance,
+    arrays = (pack_lights(look.lights), env,
               pack_ground(look.ground, prepared.bounds, camera), tuple(prepared.bvh),
               prepared.packed)  # fmt: skip
 

@@ -38,7 +38,9 @@ P_SPECULAR_R, P_SPECULAR_G, P_SPECULAR_B = 24, 25, 26
 P_SHEEN_R, P_SHEEN_G, P_SHEEN_B = 27, 28, 29  # KHR_materials_sheen
 P_SHEEN_ROUGHNESS = 30
 P_UNLIT = 31  # KHR_materials_unlit
-N_PARAMS = 32
+# model fidelity (issue 17): the coat's own normal map
+P_CLEARCOAT_NORMAL_SCALE = 32  # KHR_materials_clearcoat clearcoatNormalTexture.scale
+N_PARAMS = 33
 
 ALPHA_OPAQUE, ALPHA_MASK, ALPHA_BLEND = 0, 1, 2
 
@@ -56,7 +58,9 @@ T_SPECULAR = 9
 T_SPECULAR_COLOR = 10
 T_SHEEN_COLOR = 11
 T_SHEEN_ROUGHNESS = 12
-N_SLOTS = 13
+# model fidelity (issue 17)
+T_CLEARCOAT_NORMAL = 13  # KHR_materials_clearcoat clearcoatNormalTexture (linear)
+N_SLOTS = 14
 
 # --- sampler codes (glTF 2.0 spec §Samplers; the OpenGL enums it borrows) ----------------------
 WRAP_REPEAT, WRAP_CLAMP, WRAP_MIRROR = 10497, 33071, 33648
@@ -89,6 +93,7 @@ def default_material_params() -> np.ndarray:
     row[P_ROUGHNESS] = 1.0
     row[P_ALPHA_CUTOFF] = 0.5
     row[P_NORMAL_SCALE] = 1.0
+    row[P_CLEARCOAT_NORMAL_SCALE] = 1.0
     row[P_OCCLUSION_STRENGTH] = 1.0
     row[P_IOR] = 1.5
     row[P_ATTENUATION_DISTANCE] = np.inf
@@ -206,6 +211,9 @@ class Scene:
     variants : KHR_materials_variants names, and for each the (n,) int32 material per triangle.
     cameras, lights : the file's own cameras and punctual lights.
     source : the file the scene came from, for messages.
+    warnings : the model's notes, each a ``shots.gltf.notes.Note`` (a str with a ``kind``):
+        repairs and doubts ("warning"), and what the file asks for that is not rendered
+        ("ignored"); plain strings count as warnings.
     """
 
     positions: np.ndarray

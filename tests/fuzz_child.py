@@ -46,7 +46,9 @@ def load_model(path: Path) -> None:
 
 # --- preset TOML ------------------------------------------------------------------------------
 
-TABLES = [name for name in Preset.model_fields if name not in ("description", "lights", "shots")]
+# the preset's tables (its keys whose value is one pydantic model; lists and scalars are not)
+TABLES = [name for name, field in Preset.model_fields.items()
+          if isinstance(field.annotation, type) and hasattr(field.annotation, "model_fields")]
 KEYS = sorted({key for name in TABLES
                for key in Preset.model_fields[name].annotation.model_fields}
               | {"name", "kind", "frames", "views", "eye", "keys", "extends", "x"})

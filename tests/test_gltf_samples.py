@@ -110,8 +110,8 @@ def test_sample_loads_with_consistent_arrays(name):
     np.testing.assert_allclose(np.linalg.norm(scene.normals[used], axis=1), 1.0, atol=1e-5)
 
 
-@pytest.mark.parametrize("name", sorted(MODELS))
-def test_triangle_count_matches_manifest(name):
+@pytest.mark.parametrize("name", sorted(n for n in MODELS if "triangles" in MODELS[n]))
+def test_triangle_count_matches_manifest(name):  # the newer entries carry no count
     # MANIFEST.json "triangles": n/3, strips and fans n-2, every node instance counted. We drop
     # zero-area triangles (by design, with a warning); count those independently with trimesh's
     # own (unprocessed) faces and vertices in the mesh's coordinates.
@@ -194,7 +194,9 @@ def test_primitive_modes_sample_skips_points_and_lines():
     scene = scene_of("MeshPrimitiveModes")
     np.testing.assert_allclose(scene.bounds(), [lo + shifts.min(0), hi + shifts.max(0)],
                                atol=1e-6)
-    assert sum("skipped" in w for w in scene.warnings) == 4
+    # one note per model names each skipped mode with its count
+    assert list(scene.warnings) == ["primitives without a surface not rendered: 1 LINES, "
+                                    "1 LINE_LOOP, 1 LINE_STRIP, 1 POINTS"]
 
 
 def test_vertex_colours_equal_positions():

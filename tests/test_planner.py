@@ -506,7 +506,8 @@ def test_model_fixes_rescale_centimetres_and_stand_z_up_models_upright():
     auto = apply_model_fixes(scene, Preset.model_validate({"model": {"units": "auto"}}))
     np.testing.assert_allclose(np.ptp(auto.bounds(), axis=0), [2.0, 0.8, 0.9], rtol=1e-6)
     assert any("centimetres" in w for w in auto.warnings)
-    unchanged = apply_model_fixes(scene, Preset.model_validate({}))
+    # (model lights in use, so no note about ignoring them either)
+    unchanged = apply_model_fixes(scene, Preset.model_validate({"look": {"model_lights": "both"}}))
     assert unchanged is scene
 
 

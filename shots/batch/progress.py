@@ -167,6 +167,10 @@ def print_summary(summary, console: Console) -> None:
     table.add_row("total", "", str(summary.frames_rendered), str(summary.frames_skipped),
                   str(summary.frames_failed), f"{len(summary.failures)} failed", end_section=True)
     console.print(table)
+    for model in summary.models:  # what each file asks for that is not rendered, and repairs
+        for note in model.notes:
+            console.print(f"[yellow]note:[/] {literal(model.listed_as)}: {literal(note)}",
+                          highlight=False, soft_wrap=True)
     if summary.derivatives_written:
         console.print(f"derivatives written: {summary.derivatives_written}", highlight=False)
     for note in summary.notes:

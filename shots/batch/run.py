@@ -71,6 +71,7 @@ class ModelOutcome:
     skipped: int
     failed: int
     error: str | None
+    notes: list[str] = field(default_factory=list)  # the model's loader notes, sorted
 
 
 @dataclass
@@ -1027,7 +1028,8 @@ class Batch:
     def _outcome(self, state: ModelState) -> ModelOutcome:
         return ModelOutcome(model=state.name, listed_as=state.entry.listed_as,
                             variants=state.variants, rendered=state.rendered,
-                            skipped=state.skipped, failed=state.failed, error=state.error)
+                            skipped=state.skipped, failed=state.failed, error=state.error,
+                            notes=sorted(state.warnings))
 
 
 def _intact(path: Path, sha256: str | None) -> bool:

@@ -12,7 +12,7 @@ import os
 import numpy as np
 
 from shots.errors import GltfError
-from shots.gltf import checks, draco
+from shots.gltf import checks, draco, notes
 from shots.gltf.accessors import AccessorReader
 from shots.gltf.assemble import assemble
 from shots.gltf.cameras import file_cameras, file_lights
@@ -79,6 +79,9 @@ def _build(doc: Document, choice, limits: Limits) -> Scene:
     roots = scene_roots(doc, choice)
     nodes = builder.add_scene(roots)
     builder.warn_dropped()
+    notes.unused_features(doc, nodes)
+    cameras = file_cameras(doc, nodes)
+    notes.camera_notes(doc, cameras)
     mesh = assemble(doc, builder.pieces, len(doc.variant_names))
     if mesh.triangles.shape[0] == 0:
         doc.warn("the scene has no triangles to render")
@@ -93,7 +96,7 @@ def _build(doc: Document, choice, limits: Limits) -> Scene:
         materials=materials.table(),
         textures=atlas.result(),
         variants={name: mesh.variants[k] for k, name in enumerate(doc.variant_names)},
-        cameras=file_cameras(doc, nodes),
+        cameras=cameras,
         lights=file_lights(doc, nodes),
         source=doc.source,
         warnings=tuple(doc.warnings),
@@ -113,7 +116,7 @@ def _check_extensions(doc: Document) -> None:
     used = checks.array(gltf.extensionsUsed, src, "extensionsUsed")
     ignored = sorted(str(n) for n in used if str(n) not in SUPPORTED_EXTENSIONS)
     if ignored:
-        doc.warn(f"extensions ignored: {', '.join(ignored)}")
+        doc.ignore(f"extensions ignored: {', '.join(ignored)}")
 
 
 def _variant_names(doc: Document) -> list[str]:

@@ -27,6 +27,19 @@ INDEX_TYPES = (5121, 5123, 5125)
 FLOAT = 5126
 
 
+def padded_column(kind: str, dtype: np.dtype) -> int:
+    """Components per stored matrix column when columns are padded, else 0.
+
+    glTF 2.0 spec §3.6.2.2 "Data Alignment": matrix columns start on 4-byte boundaries, so MAT2
+    of 1-byte and MAT3 of 1- and 2-byte components carry padding after each column.
+    """
+    rows = {"MAT2": 2, "MAT3": 3}.get(kind, 0)
+    column_bytes = rows * dtype.itemsize
+    if not rows or column_bytes % 4 == 0:
+        return 0
+    return (column_bytes + 3) // 4 * 4 // dtype.itemsize
+
+
 class AccessorReader:
     """Decodes accessors of one document, each at most once.
 
@@ -76,6 +89,25 @@ class AccessorReader:
                                                     "integers, not normalized")
         return self.raw(i)[:, 0]
 
+    def vertex_misalignment(self, i: int) -> str | None:
+        """Why vertex attribute accessor ``i`` breaks the 4-byte rule, or None when it keeps it.
+
+        glTF 2.0 spec §3.6.2.2 "Data Alignment": for vertex attributes, accessor.byteOffset and
+        bufferView.byteStride MUST be multiples of 4; tightly packed (no byteStride) elements
+        are then aligned only when their own size is a multiple of 4.
+        """
+        acc = self.doc.gltf.accessors[i]
+        if acc.bufferView is None or i in self.overrides:
+            return None  # no stored layout (zeros, or decoded from compressed data)
+        offset = acc.byteOffset or 0
+        stride = self.doc.buffer_view(acc.bufferView, f"accessors[{i}].bufferView")[1]
+        element = TYPE_SIZES[acc.type] * COMPONENT_DTYPES[acc.componentType].itemsize
+        if offset % 4:
+            return f"byteOffset {offset} is not a multiple of 4"
+        if not stride and element % 4:
+            return f"tightly packed {element}-byte elements without a byteStride"
+        return None
+
     def _to_float(self, i: int) -> np.ndarray:
         acc = self.doc.gltf.accessors[i]
         data = self.raw(i)
@@ -120,7 +152,13 @@ class AccessorReader:
             data = np.zeros((count, width), dtype)
         else:
             offset = checks.integer(acc.byteOffset, src, where + ".byteOffset", default=0)
-            data = self._strided(acc.bufferView, offset, count, width, dtype, where)
+            column = padded_column(acc.type, dtype)
+            if column:  # each matrix column starts on a 4-byte boundary: read, drop the padding
+                rows = int(np.sqrt(width))
+                padded = self._strided(acc.bufferView, offset, count, rows * column, dtype, where)
+                data = padded.reshape(count, rows, column)[:, :, :rows].reshape(count, width)
+            else:
+                data = self._strided(acc.bufferView, offset, count, width, dtype, where)
         if acc.sparse is not None:
             data = self._apply_sparse(i, data)
         return data

@@ -22,6 +22,7 @@ import pygltflib
 
 from shots.errors import GltfError
 from shots.gltf import checks
+from shots.gltf.notes import IGNORED, WARNING, Note
 from shots.limits import DEFAULT, Limits
 
 GLB_MAGIC = 0x46546C67  # "glTF", Spec §GLB File Format
@@ -42,7 +43,7 @@ class Document:
     folder: Path
     gltf: pygltflib.GLTF2
     bin_chunk: memoryview | None = None
-    warnings: list[str] = field(default_factory=list)
+    warnings: list[Note] = field(default_factory=list)  # warnings and ignored features
     max_file_bytes: int = DEFAULT.file_bytes  # the model file and each file it references
     variant_names: list[str] = field(default_factory=list)  # KHR_materials_variants
     _buffers: dict[int, memoryview] = field(default_factory=dict)
@@ -52,7 +53,11 @@ class Document:
         return GltfError(self.source, json_path, message)
 
     def warn(self, message: str) -> None:
-        self.warnings.append(message)
+        self.warnings.append(Note(message, WARNING))
+
+    def ignore(self, message: str) -> None:
+        """Note something the file asks for that the renderer does not use."""
+        self.warnings.append(Note(message, IGNORED))
 
     def buffer(self, i: int) -> memoryview:
         """The bytes of ``buffers[i]``, exactly ``byteLength`` long."""
@@ -178,7 +183,7 @@ def read_document(path: str | os.PathLike, limits: Limits = DEFAULT) -> Document
     gltf = _parse_json(json_bytes, source, limits.json_values)
     doc = Document(source=source, folder=path.parent, gltf=gltf, bin_chunk=bin_chunk,
                    max_file_bytes=limits.file_bytes)
-    doc.warnings.extend(notes)
+    doc.warnings.extend(Note(n) for n in notes)
     return doc
 
 

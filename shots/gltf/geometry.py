@@ -16,6 +16,7 @@ import pygltflib
 from shots.gltf import checks
 from shots.gltf.accessors import AccessorReader
 from shots.gltf.container import Document
+from shots.gltf.mikktspace import mikktspace_corners, split_vertices
 
 TRIANGLES, TRIANGLE_STRIP, TRIANGLE_FAN = 4, 5, 6
 MODE_NAMES = {0: "POINTS", 1: "LINES", 2: "LINE_LOOP", 3: "LINE_STRIP"}
@@ -55,9 +56,9 @@ def scene_roots(doc: Document, choice: int | str | None) -> list[int]:
     elif gltf.scene is not None:
         chosen = checks.index(gltf.scene, scenes, src, "scene", "scenes")
     else:
-        chosen = 0
-        if len(scenes) > 1:
-            doc.warn("no default scene: rendering scenes[0]")
+        chosen = 0  # a note either way: the spec leaves the choice to the client
+        doc.warn("no default scene: rendering scenes[0]" if len(scenes) > 1
+                 else "no `scene` property: scene 0 used")
     nodes = checks.array(scenes[chosen].nodes, src, f"scenes[{chosen}].nodes")
     return [checks.index(n, gltf.nodes, src, f"scenes[{chosen}].nodes[{k}]", "nodes")
             for k, n in enumerate(nodes)]
@@ -166,8 +167,10 @@ class GeometryBuilder:
         self.total_triangles = 0
         self.dropped_non_finite = 0
         self.dropped_zero_area = 0
+        self.skipped_modes: dict[str, int] = {}
         self._local_triangles: dict[tuple, tuple] = {}
         self._bounds_checked: set[int] = set()
+        self._alignment_checked: set[int] = set()
         self._decoded: set[tuple[int, int]] = set()
 
     def add_scene(self, roots: list[int]) -> list[tuple[int, np.ndarray]]:
@@ -227,8 +230,9 @@ class GeometryBuilder:
                 raise doc.error(where + ".extensions.KHR_draco_mesh_compression",
                                 "Draco-compressed geometry needs the DracoPy package")
         mode = checks.integer(prim.mode, src, where + ".mode", high=6, default=TRIANGLES)
-        if mode in MODE_NAMES:
-            doc.warn(f"{where}: {MODE_NAMES[mode]} primitive skipped (no surface to render)")
+        if mode in MODE_NAMES:  # counted, named once per model in warn_dropped
+            name = MODE_NAMES[mode]
+            self.skipped_modes[name] = self.skipped_modes.get(name, 0) + 1
             return
         attributes = _attributes(prim, doc, where)
         if "POSITION" not in attributes:
@@ -240,7 +244,8 @@ class GeometryBuilder:
         n_vertices = positions.shape[0]
         if position_index not in self._bounds_checked:
             self._bounds_checked.add(position_index)
-            self._check_declared_bounds(position_index, positions)
+            self._check_declared_bounds(position_index)
+        self._check_alignment(position_index, where + ".attributes.POSITION")
         local, drawn = self._triangles(prim, mode, positions, position_index, where)
         self.total_triangles += drawn
         if self.total_triangles > self.max_triangles:
@@ -255,6 +260,7 @@ class GeometryBuilder:
             if name not in attributes:
                 return None
             data = reader.floats(attributes[name], f"{where}.attributes.{name}", types)
+            self._check_alignment(attributes[name], f"{where}.attributes.{name}")
             if data.shape[0] != n_vertices:
                 raise doc.error(f"{where}.attributes.{name}", f"count {data.shape[0]} differs "
                                                               f"from POSITION count {n_vertices}")
@@ -280,14 +286,29 @@ class GeometryBuilder:
                            self.needs_tangents(material))
         self.pieces.append(piece)
 
-    def _check_declared_bounds(self, i: int, positions: np.ndarray) -> None:
-        """Warn when POSITION's declared min/max disagree with its data (glTF 2.0 spec §Accessors:
-        POSITION must declare them)."""
+    def _check_alignment(self, i: int, where: str) -> None:
+        """Warn once per accessor about a vertex attribute off the 4-byte grid (glTF 2.0 spec
+        §3.6.2.2); it still loads (numpy reads unaligned data)."""
+        if i in self._alignment_checked:
+            return
+        self._alignment_checked.add(i)
+        reason = self.reader.vertex_misalignment(i)
+        if reason is not None:
+            self.doc.warn(f"accessors[{i}] ({where}): {reason}; vertex attributes must be "
+                          "4-byte aligned")
+
+    def _check_declared_bounds(self, i: int) -> None:
+        """Warn when POSITION's min/max are missing or disagree with its data (glTF 2.0 spec
+        §3.6.2.4: POSITION MUST declare them, in the accessor's own, unnormalized values)."""
         acc = self.doc.gltf.accessors[i]
+        if not acc.min or not acc.max:  # absent (pygltflib gives [] or None)
+            self.doc.warn(f"accessors[{i}]: POSITION has no min/max (required)")
+            return
         try:
             declared = np.array([acc.min, acc.max], np.float64).reshape(2, 3)
         except (TypeError, ValueError):
-            return  # absent or malformed: nothing to compare with
+            return  # malformed: nothing to compare with
+        positions = self.reader.raw(i)  # stored values: normalized ints stay integers
         # column by column: numpy's axis reductions over (v, 3) are slow
         actual = np.array([[positions[:, k].min() for k in range(3)],
                            [positions[:, k].max() for k in range(3)]], np.float64)
@@ -316,6 +337,9 @@ class GeometryBuilder:
         return local, drawn
 
     def warn_dropped(self) -> None:
+        if self.skipped_modes:
+            counts = ", ".join(f"{n} {mode}" for mode, n in sorted(self.skipped_modes.items()))
+            self.doc.ignore(f"primitives without a surface not rendered: {counts}")
         if self.dropped_non_finite:
             self.doc.warn(f"{self.dropped_non_finite} triangles with NaN or infinite vertices "
                           "dropped")
@@ -406,8 +430,7 @@ def _add_shading_frame(piece: Piece, normals: np.ndarray | None, attribute: Call
         if tangents is not None:
             piece.tangents = _world_tangents(tangents, linear, det)
     if texcoord is not None and piece.tangents is None:  # a normal map needs a tangent frame
-        piece.tangents = generate_tangents(piece.positions, piece.normals, piece.triangles,
-                                           piece.uv[min(texcoord, 1)])
+        generate_tangents(piece, piece.uv[min(texcoord, 1)])
 
 
 def _has_fallback(doc: Document, prim) -> bool:
@@ -522,45 +545,20 @@ def _make_flat(piece: Piece) -> None:
     piece.tangents = None
 
 
-def generate_tangents(positions: np.ndarray, normals: np.ndarray, triangles: np.ndarray,
-                      uv: np.ndarray | None) -> np.ndarray:
-    """(v, 4) float32 tangents from UV derivatives, averaged per vertex (Lengyel's method).
-
-    T follows +u. glTF's v runs down the image, so the bitangent B = cross(N, T)·w must point
-    toward decreasing v (glTF 2.0 spec §Meshes, TANGENT; glTF-Sample-Models issue #174):
-    w = sign(dot(cross(N, T), -dP/dv)).
-    """
-    v = positions.shape[0]
-    out = np.zeros((v, 4), np.float32)
-    out[:, 3] = 1.0
-    if uv is None or triangles.shape[0] == 0:
-        out[:, :3] = _any_perpendicular(normals)
-        return out
-    p = positions.astype(np.float64)
-    t = uv.astype(np.float64)
-    i0, i1, i2 = triangles[:, 0], triangles[:, 1], triangles[:, 2]
-    e1, e2 = p[i1] - p[i0], p[i2] - p[i0]
-    d1, d2 = t[i1] - t[i0], t[i2] - t[i0]
-    det = d1[:, 0] * d2[:, 1] - d2[:, 0] * d1[:, 1]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        r = np.where(np.abs(det) > 1e-20, 1.0 / det, 0.0)[:, None]
-    dp_du = (e1 * d2[:, 1:2] - e2 * d1[:, 1:2]) * r
-    dp_dv = (e2 * d1[:, 0:1] - e1 * d2[:, 0:1]) * r
-    tan = np.zeros((v, 3))
-    bit = np.zeros((v, 3))
-    for corner in (i0, i1, i2):
-        for axis in range(3):
-            tan[:, axis] += np.bincount(corner, dp_du[:, axis], minlength=v)
-            bit[:, axis] += np.bincount(corner, dp_dv[:, axis], minlength=v)
-    n = normals.astype(np.float64)
-    tan -= n * np.einsum("ij,ij->i", n, tan)[:, None]  # Gram-Schmidt against N
-    unit = _unit(tan)
-    missing = ~unit.any(axis=1)
-    unit[missing] = _any_perpendicular(normals[missing])
-    out[:, :3] = unit
-    handed = np.einsum("ij,ij->i", np.cross(n, unit), -bit)
-    out[:, 3] = np.where(handed < 0, -1.0, 1.0)
-    return out
+def generate_tangents(piece: Piece, uv: np.ndarray | None) -> None:
+    """Give ``piece`` MikkTSpace tangents (``shots.gltf.mikktspace``), splitting the vertices
+    whose corners need different tangents (mirrored UV seams). Without UVs any tangent
+    perpendicular to the normal will do (w = +1)."""
+    if uv is None or piece.triangles.shape[0] == 0:
+        piece.tangents = np.ones((piece.positions.shape[0], 4), np.float32)
+        piece.tangents[:, :3] = _any_perpendicular(piece.normals)
+        return
+    corners = mikktspace_corners(piece.positions, piece.normals, piece.triangles, uv)
+    source, piece.triangles, piece.tangents = split_vertices(piece.triangles, corners)
+    piece.positions = np.take(piece.positions, source, axis=0)
+    piece.normals = np.take(piece.normals, source, axis=0)
+    piece.uv = [None if t is None else np.take(t, source, axis=0) for t in piece.uv]
+    piece.colors = None if piece.colors is None else np.take(piece.colors, source, axis=0)
 
 
 def _any_perpendicular(normals: np.ndarray) -> np.ndarray:

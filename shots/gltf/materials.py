@@ -28,6 +28,7 @@ from shots.scene import (
     P_BASE_A,
     P_BASE_R,
     P_CLEARCOAT,
+    P_CLEARCOAT_NORMAL_SCALE,
     P_CLEARCOAT_ROUGHNESS,
     P_DOUBLE_SIDED,
     P_EMISSIVE_B,
@@ -48,6 +49,7 @@ from shots.scene import (
     P_UNLIT,
     T_BASE_COLOR,
     T_CLEARCOAT,
+    T_CLEARCOAT_NORMAL,
     T_CLEARCOAT_ROUGHNESS,
     T_EMISSIVE,
     T_METALLIC_ROUGHNESS,
@@ -76,7 +78,8 @@ EXTENSION_TEXTURES = {
     "KHR_materials_transmission": [("transmissionTexture", T_TRANSMISSION)],
     "KHR_materials_volume": [("thicknessTexture", T_THICKNESS)],
     "KHR_materials_clearcoat": [("clearcoatTexture", T_CLEARCOAT),
-                                ("clearcoatRoughnessTexture", T_CLEARCOAT_ROUGHNESS)],
+                                ("clearcoatRoughnessTexture", T_CLEARCOAT_ROUGHNESS),
+                                ("clearcoatNormalTexture", T_CLEARCOAT_NORMAL)],
     "KHR_materials_specular": [("specularTexture", T_SPECULAR),
                                ("specularColorTexture", T_SPECULAR_COLOR)],
     "KHR_materials_sheen": [("sheenColorTexture", T_SHEEN_COLOR),
@@ -212,7 +215,11 @@ class MaterialBuilder:
         for name, slots in EXTENSION_TEXTURES.items():
             body = self._ext(ext, name, where)
             for key, slot in slots:
-                self._slot(i, slot, body.get(key), f"{where}.extensions.{name}.{key}")
+                info = self._slot(i, slot, body.get(key), f"{where}.extensions.{name}.{key}")
+                if slot == T_CLEARCOAT_NORMAL and info is not None:  # KHR_materials_clearcoat
+                    row[P_CLEARCOAT_NORMAL_SCALE] = checks.number(
+                        info.get("scale"), src, f"{where}.extensions.{name}.{key}.scale",
+                        default=1.0)
 
     def _ext(self, ext: dict, name: str, where: str) -> dict:
         return checks.mapping(ext.get(name), self.doc.source, f"{where}.extensions.{name}")

@@ -69,8 +69,12 @@ def clearcoat_fresnel(surf, vx, vy, vz):
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
-def eval_bsdf(surf, vx, vy, vz, lx, ly, lz):
-    """f(v, l)·(N·L) of the surface for unit view v and light l; returns r, g, b."""
+def eval_bsdf(surf, vx, vy, vz, lx, ly, lz, spec_weight=1.0):
+    """f(v, l)·(N·L) of the surface for unit view v and light l; returns r, g, b.
+
+    ``spec_weight`` scales the base layer's specular lobe alone (its multiple-importance weight
+    when glossy rays share that lobe with the light samples, ``shots.kernels.direct``).
+    """
     nx, ny, nz = surf[S_NX], surf[S_NY], surf[S_NZ]
     n_dot_l = nx * lx + ny * ly + nz * lz
     if n_dot_l <= 0.0:
@@ -86,7 +90,7 @@ def eval_bsdf(surf, vx, vy, vz, lx, ly, lz):
     n_dot_h = nx * hx + ny * hy + nz * hz
     v_dot_h = vx * hx + vy * hy + vz * hz
     alpha = alpha_of(surf[S_ROUGHNESS])
-    d_vis = specular_lobe(n_dot_l, n_dot_v, n_dot_h, alpha)
+    d_vis = specular_lobe(n_dot_l, n_dot_v, n_dot_h, alpha) * spec_weight
     fw = schlick_weight(v_dot_h)
     metallic = surf[S_METALLIC]
     diffuse_weight = 1.0 - surf[S_TRANSMISSION]

@@ -12,7 +12,8 @@ import math
 import numpy as np
 from numba import njit
 
-from shots.kernels.direct import shadow_amount
+from shots.kernels.ambient import limit_indirect, take_back_sky
+from shots.kernels.direct import lights_seen, shadow_amount
 from shots.kernels.envlight import env_radiance
 from shots.kernels.ground import (
     G_KIND,
@@ -25,7 +26,6 @@ from shots.kernels.layout import (
     F_AREA_SAMPLES,
     F_ASPECT,
     F_BACKGROUND,
-    F_CONTACT_SAMPLES,
     F_EYE,
     F_HEIGHT,
     F_ORTHO,
@@ -44,11 +44,14 @@ from shots.kernels.layout import (
 )
 from shots.kernels.raystack import (
     N_RAY,
+    R_AMBIENT,
+    R_BOUNCES,
     R_CAMERA,
     R_CONE,
     R_CONE_HIT,
     R_COVER,
     R_D,
+    R_DEPTH,
     R_O,
     R_SPREAD,
     R_TMIN,
@@ -66,7 +69,7 @@ from shots.kernels.visibility import find_surface
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
-def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env_map, bvh, scene,
+def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env, bvh, scene,
                  ground, pixel, sample, stack, surf, surf2, work, tstack):  # fmt: skip
     """Trace one camera ray and its tree; adds premultiplied RGBA into work[W_ACC:+4].
 
@@ -83,19 +86,21 @@ def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env_ma
         rox, roy, roz = ray[R_O], ray[R_O + 1], ray[R_O + 2]
         rdx, rdy, rdz = ray[R_D], ray[R_D + 1], ray[R_D + 2]
         camera = ray[R_CAMERA] != 0.0
+        r0, g0, b0 = work[W_ACC], work[W_ACC + 1], work[W_ACC + 2]
         work[W_CONE] = ray[R_CONE]
         work[W_SPREAD] = ray[R_SPREAD]
         t, what = find_surface(bvh, scene, ground, rox, roy, roz, rdx, rdy, rdz, ray[R_TMIN],
                                camera, surf, work, tstack)  # fmt: skip
         ray[R_CONE_HIT] = ray[R_CONE] + ray[R_SPREAD] * t  # the rays this hit spawns start here
+        if not camera:
+            lights_seen(lights, frame, ray, t, work)
         if what == 2 and camera and int(ground[G_KIND]) == GROUND_CATCHER:
             # invisible floor: its shadow becomes coverage of black (premultiplied: alpha only);
             # the rest of the ray shows the background (nothing stands below the floor)
-            shadow = shadow_amount(surf, lights, int(frame[F_AREA_SAMPLES]),
-                                   int(frame[F_CONTACT_SAMPLES]), int(frame[F_SAMPLES]),
-                                   int(frame[F_SEED]), pixel, sample, frame, bvh, scene,
-                                   ground, frame[F_SEE_THROUGH] != 0.0, surf2, work,
-                                   tstack)  # fmt: skip
+            shadow = shadow_amount(surf, ray, lights, int(frame[F_AREA_SAMPLES]),
+                                   int(frame[F_SAMPLES]), int(frame[F_SEED]), pixel, sample,
+                                   frame, env, bvh, scene, ground, frame[F_SEE_THROUGH] != 0.0,
+                                   stack, surf2, work, tstack)  # fmt: skip
             a = min(shadow * ground[G_STRENGTH], 1.0)
             work[W_ACC + 3] += ray[R_COVER] * a
             for c in range(3):
@@ -103,7 +108,8 @@ def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env_ma
             ray[R_COVER] *= 1.0 - a
             what = 0
         if what != 0:
-            sp = shade_hit(surf, ray, t, frame, lights, env_map, bvh, scene, ground, pixel, sample,
+            take_back_sky(ray, work)
+            sp = shade_hit(surf, ray, t, frame, lights, env, bvh, scene, ground, pixel, sample,
                            stack, sp, surf2, work, tstack)  # fmt: skip
         elif camera and background != BG_ENVIRONMENT:
             if background != BG_TRANSPARENT:
@@ -111,13 +117,15 @@ def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env_ma
                 work[W_ACC + 1] += ray[R_W + 1] * bg_g
                 work[W_ACC + 2] += ray[R_W + 2] * bg_b
                 work[W_ACC + 3] += ray[R_COVER]
-        else:
-            qr, qg, qb = env_radiance(env_map, frame, rdx, rdy, rdz, work)
+        elif ray[R_AMBIENT] == 0.0:  # (a bounce ray's sky is in its hit's ambient base)
+            qr, qg, qb = env_radiance(env, frame, rdx, rdy, rdz, work)
             work[W_ACC] += ray[R_W] * qr
             work[W_ACC + 1] += ray[R_W + 1] * qg
             work[W_ACC + 2] += ray[R_W + 2] * qb
             if camera:
                 work[W_ACC + 3] += ray[R_COVER]
+        if ray[R_DEPTH] >= 2.0 or ray[R_BOUNCES] >= 1.0:  # light scattered twice or more
+            limit_indirect(work, frame, r0, g0, b0)
         if sp == 0:
             return
         sp -= 1

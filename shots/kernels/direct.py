@@ -2,24 +2,40 @@
 
 Area lights take stratified samples whose cells are spread over the pixel's camera samples
 (``shots.kernels.sampling.spread_stratum``), so their shadows are soft at any sample count.
+A glossy lobe's highlight of an area light comes from two techniques, combined by multiple
+importance sampling with the power heuristic (Veach 1995, §9.2): the light samples here, and the
+glossy reflection rays (``shots.kernels.reflection``) that meet the light (``lights_seen``). Light
+samples find broad highlights, reflection rays sharp ones, so neither leaves sparkles.
 """
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from numba import njit
 
+from shots.kernels.ambient import ambient_light, power_heuristic
 from shots.kernels.bsdf import eval_bsdf
-from shots.kernels.envlight import sh_irradiance
-from shots.kernels.layout import (
-    F_CONTACT_REACH,
+from shots.kernels.layout import F_AREA_SAMPLES, F_CONTACT_REACH, F_SAMPLES, W_ACC
+from shots.kernels.lights import (
+    KIND_AREA,
+    L_B,
+    L_DX,
+    L_DY,
+    L_DZ,
+    L_G,
+    L_KIND,
+    L_R,
+    area_pdf,
+    hit_area_light,
+    sample_light,
 )
-from shots.kernels.lights import KIND_AREA, L_KIND, sample_light
+from shots.kernels.raystack import R_D, R_DEPTH, R_LIGHT_PDF, R_O, R_W
+from shots.kernels.reflection import glossy_pdf
 from shots.kernels.sampling import (
-    cosine_hemisphere,
     luminance,
     next_pair,
-    orthonormal_basis,
     pixel_key,
     spread_count,
     spread_stratum,
@@ -39,12 +55,13 @@ from shots.kernels.visibility import offset_point, shadow_ray
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sample, frame, bvh,
-                 scene, ground, see_through, surf2, work, tstack):  # fmt: skip
+def direct_light(surf, vx, vy, vz, lights, area_samples, n_glossy, spp, seed, pixel, sample,
+                 frame, bvh, scene, ground, see_through, surf2, work, tstack):  # fmt: skip
     """Reflected radiance from all look lights with shadow rays; returns r, g, b.
 
     An area light gets ``spread_count(area_samples, spp)`` stratified shadow rays here, their
-    cells spread over the pixel's ``spp`` camera samples.
+    cells spread over the pixel's ``spp`` camera samples. When the hit also sends ``n_glossy``
+    glossy rays, the specular lobe's share of each light sample takes its MIS weight.
     """
     px, py, pz = surf[S_PX], surf[S_PY], surf[S_PZ]
     gx, gy, gz = surf[S_GX], surf[S_GY], surf[S_GZ]
@@ -62,7 +79,12 @@ def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sampl
             wx, wy, wz, dist, er, eg, eb = sample_light(lights, k, px, py, pz, u1, u2)
             if er + eg + eb <= 0.0 or wx * gx + wy * gy + wz * gz <= 0.0:
                 continue
-            fr, fg, fb = eval_bsdf(surf, vx, vy, vz, wx, wy, wz)
+            spec_weight = 1.0
+            if area and n_glossy > 0:
+                cos_light = -(wx * lights[k, L_DX] + wy * lights[k, L_DY] + wz * lights[k, L_DZ])
+                spec_weight = power_heuristic(n * area_pdf(lights, k, dist, cos_light),
+                                              n_glossy * glossy_pdf(surf, vx, vy, vz, wx, wy, wz))  # fmt: skip
+            fr, fg, fb = eval_bsdf(surf, vx, vy, vz, wx, wy, wz, spec_weight)
             fr *= er * inv_n
             fg *= eg * inv_n
             fb *= eb * inv_n
@@ -80,13 +102,35 @@ def direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sampl
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def shadow_amount(surf, lights, area_samples, contact_samples, spp, seed, pixel, sample,
-                  frame, bvh, scene, ground, see_through, surf2, work,
-                  tstack):  # fmt: skip
+def lights_seen(lights, frame, ray, t_hit, work):
+    """A glossy ray meets area lights before its hit at ``t_hit``: add their radiance, weighted
+    against the light samples of the hit that sent it (the other half of ``direct_light``'s MIS).
+    """
+    pdf_ray = ray[R_LIGHT_PDF]
+    if pdf_ray <= 0.0:
+        return
+    area_samples = int(frame[F_AREA_SAMPLES]) if int(ray[R_DEPTH]) == 1 else 1
+    n = spread_count(area_samples, int(frame[F_SAMPLES]))  # as direct_light at the sender
+    for k in range(lights.shape[0]):
+        if int(lights[k, L_KIND]) != KIND_AREA:
+            continue
+        t, cos_light = hit_area_light(lights, k, ray[R_O], ray[R_O + 1], ray[R_O + 2], ray[R_D],
+                                      ray[R_D + 1], ray[R_D + 2])  # fmt: skip
+        if t < t_hit:
+            w = power_heuristic(pdf_ray, n * area_pdf(lights, k, t, cos_light))
+            work[W_ACC + 0] += ray[R_W] * lights[k, L_R] * w
+            work[W_ACC + 1] += ray[R_W + 1] * lights[k, L_G] * w
+            work[W_ACC + 2] += ray[R_W + 2] * lights[k, L_B] * w
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def shadow_amount(surf, ray, lights, area_samples, spp, seed, pixel, sample, frame, env, bvh,
+                  scene, ground, see_through, stack, surf2, work, tstack):  # fmt: skip
     """How much of the light a shadow-catcher point loses to the product, in [0, 1].
 
     1 − (light arriving) / (light that would arrive without the product), by luminance, from the
-    look lights and from the environment (cosine-weighted rays: soft contact shadow).
+    look lights and from the environment (the estimator of ``shots.kernels.ambient`` for a white
+    Lambertian floor: the contact shadow is the sky the product hides nearby).
     """
     px, py, pz = surf[S_PX], surf[S_PY], surf[S_PZ]
     nx, ny, nz = surf[S_NX], surf[S_NY], surf[S_NZ]
@@ -113,29 +157,14 @@ def shadow_amount(surf, lights, area_samples, contact_samples, spp, seed, pixel,
                                        surf2, work, tstack)  # fmt: skip
             full += e
             lit += e * luminance(tr, tg, tb)
-    if contact_samples > 0:
-        # the environment's share: its irradiance here, with the visible fraction of the sky
-        # from cosine-weighted rays (the sky counted as even: a soft, direction-free contact
-        # shadow; the look lights supply the directional ones)
-        er, eg, eb = sh_irradiance(frame, nx, ny, nz)
-        e_env = luminance(er, eg, eb)
-        t1x, t1y, t1z, t2x, t2y, t2z = orthonormal_basis(nx, ny, nz)
-        n = spread_count(contact_samples, spp)
-        key = pixel_key(seed, pixel, lights.shape[0])
-        reach = frame[F_CONTACT_REACH]  # nearby occluders only (see render.pack_frame)
-        seen = 0.0
-        for s in range(n):
-            r1, r2 = next_pair(seed, pixel, sample, work)
-            a, b = spread_stratum(s, n, sample, spp, key, r1, r2)
-            lx, ly, lz = cosine_hemisphere(a, b)
-            wx = lx * t1x + ly * t2x + lz * nx
-            wy = lx * t1y + ly * t2y + lz * ny
-            wz = lx * t1z + ly * t2z + lz * nz
-            tr, tg, tb = shadow_ray(frame, bvh, scene, ground, see_through, ox, oy, oz, wx, wy, wz,
-                                       reach, surf2, work, tstack)  # fmt: skip
-            seen += luminance(tr, tg, tb)
-        full += e_env
-        lit += e_env * seen / n
+    # nearby blockers only (F_CONTACT_REACH, see render.pack_frame)
+    _, br, bg, bb, cr, cg, cb = ambient_light(surf, ray, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 0.0, 0.0,
+                                              0.0, False, frame[F_CONTACT_REACH], frame, env, bvh,
+                                              scene, ground, pixel, sample, stack, 0, surf2, work,
+                                              tstack)  # fmt: skip
+    e_env = math.pi * luminance(br, bg, bb)  # radiance of a white floor → irradiance
+    full += e_env
+    lit += e_env + math.pi * luminance(cr, cg, cb)
     if full <= 0.0:
         return 0.0
     return min(max(1.0 - lit / full, 0.0), 1.0)

@@ -52,7 +52,7 @@ WORK_ITEMS = 256  # parallel items; tiles are dealt round-robin so threads stay 
 # No fastmath here: numba passes it on to the callees it compiles, and contracting the
 # watertight edge functions into FMAs lets rays through shared edges (Woop et al. 2013).
 @njit(cache=True, parallel=True, error_model="numpy")
-def render_image(out, frame, lights, env_map, ground, bvh, scene, active, counts):
+def render_image(out, frame, lights, env, ground, bvh, scene, active, counts):
     """Render one stratified set of samples in every active pixel into ``out``.
 
     Parameters
@@ -60,7 +60,8 @@ def render_image(out, frame, lights, env_map, ground, bvh, scene, active, counts
     out : (h, w, 4) float32, receives the set's mean premultiplied linear RGBA in active
         pixels (the others are left as they are).
     frame : (N_FRAME,) float64 camera, settings, background and SH (``shots.kernels.layout``).
-    lights : (k, N_LIGHT_COLS) float64; env_map : (eh, ew, 3) float32 linear radiance;
+    lights : (k, N_LIGHT_COLS) float64; env : (radiance (eh, ew, 3) float32, its sampling
+    table rows (eh, ew) and marginal (eh,) float64), see ``shots.kernels.envlight``;
     ground : (N_GROUND,) float64; bvh, scene : see the module docstring.
     active : (h, w) uint8, non-zero where the pixel takes this set.
     counts : (h, w) int32, each active pixel's count grows by the samples it traced.
@@ -73,17 +74,18 @@ def render_image(out, frame, lights, env_map, ground, bvh, scene, active, counts
         owned = (new_stack(), np.empty((STACK_RAYS, N_RAY), np.float64),
                  np.zeros((2, N_SURFACE), np.float64), np.zeros(N_WORK, np.float64))  # fmt: skip
         scratch = (borrow(owned[0]), borrow(owned[1]), borrow(owned[2]), borrow(owned[3]))
+        b_env = (borrow(env[0]), borrow(env[1]), borrow(env[2]))
         b_bvh = (borrow(bvh[0]), borrow(bvh[1]), borrow(bvh[2]), borrow(bvh[3]))
         b_scene = (borrow(scene[0]), borrow(scene[1]), borrow(scene[2]), borrow(scene[3]),
                    borrow(scene[4]))  # fmt: skip
-        render_tiles(np.int64(item), borrow(out), borrow(frame), borrow(lights), borrow(env_map),
+        render_tiles(np.int64(item), borrow(out), borrow(frame), borrow(lights), b_env,
                      borrow(ground), b_bvh, b_scene, borrow(active), borrow(counts),
                      scratch)  # fmt: skip
         owned[3][W_DIM] = 0.0  # the scratch stays owned (alive) until here, past its views
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def render_tiles(item, out, frame, lights, env_map, ground, bvh, scene, active, counts, scratch):
+def render_tiles(item, out, frame, lights, env, ground, bvh, scene, active, counts, scratch):
     """Render the tiles dealt to work item ``item`` (every WORK_ITEMS-th tile from ``item``).
 
     ``scratch`` is (traversal stack, ray stack, two surface records, work record), this item's.
@@ -115,8 +117,8 @@ def render_tiles(item, out, frame, lights, env_map, ground, bvh, scene, active, 
                     bg_b = (1.0 - f) * frame[F_BG_TOP + 2] + f * frame[F_BG_BOTTOM + 2]
                     work[W_DIM] = 1.0  # dimension 0 placed the sample
                     trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights,
-                                 env_map, bvh, scene, ground, pixel, s, stack, surf, surf2,
-                                 work, tstack)  # fmt: skip
+                                 env, bvh, scene, ground, pixel, s, stack, surf,
+                                 surf2, work, tstack)  # fmt: skip
                     counts[j, i] += 1
                 for c in range(4):
                     value = work[W_ACC + c] / spp

@@ -9,7 +9,7 @@ called for every ray.
     materials (m, N_MAT) float32    the ``shots.scene`` P_* columns, then per texture slot:
                                     texture index, texcoord set, uv affine a00 a01 a02 a10 a11 a12
     frame     (N_FRAME,) float64    camera, settings, background, SH irradiance, env rotation,
-                                    scene bounds
+                                    the model's box, diffuse bounces
     work      (N_WORK,) float64     per-thread scratch: interpolated uvs, a texel, an env lookup,
                                     the sample's accumulator and its random-dimension counter
 """
@@ -34,12 +34,16 @@ F_EYE, F_U, F_V, F_W = 0, 3, 6, 9
 F_TAN_Y, F_ASPECT, F_ORTHO, F_YMAG = 12, 13, 14, 15
 # settings (integers stored as float64)
 F_WIDTH, F_HEIGHT, F_SAMPLES, F_AREA_SAMPLES, F_GLOSSY_SAMPLES = 16, 17, 18, 19, 20
-F_MAX_DEPTH, F_SEED, F_SEE_THROUGH, F_BACKGROUND, F_CONTACT_SAMPLES = 21, 22, 23, 24, 25
+F_MAX_DEPTH, F_SEED, F_SEE_THROUGH, F_BACKGROUND = 21, 22, 23, 24  # 25: free
 F_BG_TOP, F_BG_BOTTOM = 26, 29  # linear rgb
 F_SH = 32  # 9 × 3 SH irradiance coefficients, row-major
 F_ENV_ROTATION = 59
 F_CONTACT_REACH = 60  # length of the floor's contact-shadow rays (m)
-N_FRAME = 61
+# --- occluded environment light and diffuse bounces (shots.kernels.ambient) ---
+F_BOX = 61  # (6) the model's bounding box: min xyz, max xyz
+F_DIFFUSE_BOUNCES = 67  # diffuse bounces a path may take
+F_INDIRECT_CLAMP = 68  # largest luminance one indirect ray may add to a sample
+N_FRAME = 69
 BG_TRANSPARENT, BG_SOLID, BG_GRADIENT, BG_ENVIRONMENT = 0, 1, 2, 3
 
 # --- work ------------------------------------------------------------------------------------

@@ -103,3 +103,33 @@ def sample_light(lights, k, px, py, pz, u1, u2):
         cos_axis = -(wx * dx + wy * dy + wz * dz)
         s *= spot_attenuation(cos_axis, lights[k, L_SPOT_SCALE], lights[k, L_SPOT_OFFSET])
     return wx, wy, wz, d, r * s, g * s, b * s
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def hit_area_light(lights, k, ox, oy, oz, dx, dy, dz):
+    """Where a ray meets area light ``k``'s emitting face: (t, cos at the light), t = inf on a
+    miss. The light is a rectangle (edge vectors at right angles, as the rigs build them)."""
+    nx, ny, nz = lights[k, L_DX], lights[k, L_DY], lights[k, L_DZ]
+    cos_light = -(dx * nx + dy * ny + dz * nz)
+    if cos_light <= 0.0:  # one-sided: it emits along its direction only
+        return math.inf, 0.0
+    cx, cy, cz = lights[k, L_PX] - ox, lights[k, L_PY] - oy, lights[k, L_PZ] - oz
+    t = -(cx * nx + cy * ny + cz * nz) / cos_light
+    if t <= 0.0:
+        return math.inf, 0.0
+    qx, qy, qz = t * dx - cx, t * dy - cy, t * dz - cz  # hit point − centre
+    ux, uy, uz = lights[k, L_UX], lights[k, L_UY], lights[k, L_UZ]
+    vx, vy, vz = lights[k, L_VX], lights[k, L_VY], lights[k, L_VZ]
+    a = (qx * ux + qy * uy + qz * uz) / (ux * ux + uy * uy + uz * uz)
+    b = (qx * vx + qy * vy + qz * vz) / (vx * vx + vy * vy + vz * vz)
+    if abs(a) > 0.5 or abs(b) > 0.5:
+        return math.inf, 0.0
+    return t, cos_light
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def area_pdf(lights, k, distance, cos_light):
+    """Solid-angle pdf of ``sample_light``'s uniform point on area light k: d² / (A cos θ)."""
+    if cos_light <= 0.0:
+        return 0.0
+    return distance * distance / (lights[k, L_AREA] * cos_light)

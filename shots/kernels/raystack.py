@@ -21,7 +21,12 @@ R_START = 16  # (3) where the ray's medium segment began: its un-offset surface 
 R_CONE = 19  # cone width at the origin (world units)
 R_SPREAD = 20  # spread angle (radians; small-angle: width grows by this per unit distance)
 R_CONE_HIT = 21  # cone width where the ray hit (set by the tracer before the hit spawns rays)
-N_RAY = 22
+# --- environment light and diffuse bounces (shots.kernels.ambient) ---
+R_BOUNCES = 22  # diffuse bounces on the path so far (copied from the ray being traced)
+R_AMBIENT = 23  # 1: the environment this ray would see is already counted (ambient base)
+R_SKY = 24  # (3) what to take back when such a ray is blocked
+R_LIGHT_PDF = 27  # > 0: a glossy ray that sees area lights; its technique's solid-angle pdf
+N_RAY = 28
 STACK_RAYS = 96  # the last row holds the ray being traced
 MIN_WEIGHT = 1e-3  # rays carrying less than this are not traced (their mean is added instead)
 
@@ -33,13 +38,15 @@ def push_ray(stack, sp, ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, 
     The ray cone comes from the ray being traced (the last row): a ray spawned at its hit
     (tmin = 0) starts with the cone's width there; a continuation from the same origin
     (tmin > 0, behind a BLEND surface) keeps the cone as it is. The spread is kept (surfaces
-    are treated as flat, curvature term β = 0 in the ray-cone model)."""
+    are treated as flat, curvature term β = 0 in the ray-cone model). The new ray also
+    inherits the path's diffuse-bounce count."""
     current = stack.shape[0] - 1
     if sp >= current:  # the last row is the current ray
         return sp
     set_ray(stack[sp], ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, sr, sg, sb, camera)
     stack[sp, R_CONE] = stack[current, R_CONE] if tmin > 0.0 else stack[current, R_CONE_HIT]
     stack[sp, R_SPREAD] = stack[current, R_SPREAD]
+    stack[sp, R_BOUNCES] = stack[current, R_BOUNCES]
     return sp + 1
 
 
@@ -66,6 +73,12 @@ def set_ray(row, ox, oy, oz, dx, dy, dz, wr, wg, wb, cover, depth, tmin, sr, sg,
     row[R_START] = ox
     row[R_START + 1] = oy
     row[R_START + 2] = oz
+    row[R_BOUNCES] = 0.0
+    row[R_AMBIENT] = 0.0
+    row[R_SKY] = 0.0
+    row[R_SKY + 1] = 0.0
+    row[R_SKY + 2] = 0.0
+    row[R_LIGHT_PDF] = 0.0
 
 
 

@@ -1,22 +1,24 @@
 """Light reflected off the surface: the specular lobe and the clearcoat layer.
 
 Smooth surfaces send one mirror ray; glossy ones several GGX-sampled rays (visible normals,
-Heitz 2018), weighted by Fresnel; rough lobes take the SH-blurred environment along the mirror
-direction instead (tracing them mostly adds noise).
+Heitz 2018), weighted by Fresnel. Lobes too wide to trace one by one (``wide_lobe``) go with the
+diffuse lobe through ``shots.kernels.ambient`` instead.
 """
 
 from __future__ import annotations
 
+import math
+
 from numba import njit
 
 from shots.kernels.brdf import (
-    INV_PI,
     alpha_of,
+    ggx_d,
     sample_ggx_vndf,
     smith_g1,
     smith_vis,
 )
-from shots.kernels.envlight import env_radiance, sh_irradiance
+from shots.kernels.envlight import env_radiance
 from shots.kernels.layout import (
     F_GLOSSY_SAMPLES,
     F_SAMPLES,
@@ -27,6 +29,7 @@ from shots.kernels.raystack import (
     MIN_WEIGHT,
     R_D,
     R_DEPTH,
+    R_LIGHT_PDF,
     R_SIGMA,
     push_ray,
     set_start,
@@ -57,16 +60,49 @@ from shots.kernels.surface import (
 from shots.kernels.visibility import offset_point
 
 MIRROR_ROUGHNESS = 0.03  # below: one ideal mirror ray (α ≤ 1e-3, a delta in practice)
-# At and above these roughnesses a lobe is taken as blurred environment light instead of traced:
+# At and above these roughnesses a lobe is shaded with the diffuse one (``wide_lobe``):
 # a dielectric reflects only ~4 % and its blurred highlight hides in noise, a metal shows it all.
 GLOSSY_DIELECTRIC = 0.3
 GLOSSY_METAL = 0.6
 
 
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def wide_lobe(surf):
+    """Whether the specular lobe is rough enough to be shaded with the diffuse one."""
+    limit = GLOSSY_DIELECTRIC + (GLOSSY_METAL - GLOSSY_DIELECTRIC) * surf[S_METALLIC]
+    return surf[S_ROUGHNESS] >= limit
+
+
 @njit(cache=True, error_model="numpy", _nrt=False)
-def spawn_reflection(surf, ray, rw0, rw1, rw2, can_trace, frame, lights, env_map, pixel, sample,
+def glossy_rays(surf, frame, depth, can_trace):
+    """How many GGX-sampled rays ``spawn_reflection`` sends from this hit (0: none)."""
+    roughness = surf[S_ROUGHNESS]
+    if not can_trace or roughness < MIRROR_ROUGHNESS or wide_lobe(surf):
+        return 0
+    if depth > 0:
+        return 1
+    return spread_count(int(frame[F_GLOSSY_SAMPLES]), int(frame[F_SAMPLES]))
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def glossy_pdf(surf, vx, vy, vz, lx, ly, lz):
+    """Solid-angle pdf of one glossy ray toward l: G1(v)·D(h) / (4 N·V) (Heitz 2018, eq. 17 with
+    the reflection Jacobian 1 / (4 V·H))."""
+    nx, ny, nz = surf[S_NX], surf[S_NY], surf[S_NZ]
+    n_dot_v = max(nx * vx + ny * vy + nz * vz, 1e-4)
+    hx, hy, hz = vx + lx, vy + ly, vz + lz
+    hl = math.sqrt(hx * hx + hy * hy + hz * hz)
+    if hl <= 0.0:
+        return 0.0
+    alpha = alpha_of(surf[S_ROUGHNESS])
+    d = ggx_d((nx * hx + ny * hy + nz * hz) / hl, alpha)
+    return smith_g1(n_dot_v, alpha) * d / (4.0 * n_dot_v)
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def spawn_reflection(surf, ray, rw0, rw1, rw2, can_trace, frame, lights, env, pixel, sample,
                      stack, sp, work):  # fmt: skip
-    """Reflect light of weight ``rw`` off the base layer; returns the stack size."""
+    """Reflect light of weight ``rw`` off a mirror or glossy base layer; returns the stack size."""
     seed = int(frame[F_SEED])
     depth = int(ray[R_DEPTH])
     sr, sg, sb = ray[R_SIGMA], ray[R_SIGMA + 1], ray[R_SIGMA + 2]
@@ -77,22 +113,13 @@ def spawn_reflection(surf, ray, rw0, rw1, rw2, can_trace, frame, lights, env_map
     roughness = surf[S_ROUGHNESS]
     rx, ry, rz = 2.0 * n_dot_v * nx - vx, 2.0 * n_dot_v * ny - vy, 2.0 * n_dot_v * nz - vz
     ox, oy, oz = offset_point(surf, 1.0)
-    glossy_limit = GLOSSY_DIELECTRIC + (GLOSSY_METAL - GLOSSY_DIELECTRIC) * surf[S_METALLIC]
-    if roughness >= glossy_limit:
-        # a wide lobe: the environment blurred like irradiance, seen along the mirror
-        # direction (no occlusion) instead of noisy rays
-        qr, qg, qb = sh_irradiance(frame, rx, ry, rz)
-        work[W_ACC + 0] += rw0 * qr * INV_PI
-        work[W_ACC + 1] += rw1 * qg * INV_PI
-        work[W_ACC + 2] += rw2 * qb * INV_PI
-        return sp
     if roughness < MIRROR_ROUGHNESS or not can_trace:
         if can_trace and max(rw0, rw1, rw2) >= MIN_WEIGHT:
             sp = push_ray(stack, sp, ox, oy, oz, rx, ry, rz, rw0, rw1, rw2, 0.0, depth + 1, 0.0,
                           sr, sg, sb, 0.0)  # fmt: skip
             set_start(stack, sp, px, py, pz)
         else:
-            qr, qg, qb = env_radiance(env_map, frame, rx, ry, rz, work)
+            qr, qg, qb = env_radiance(env, frame, rx, ry, rz, work)
             work[W_ACC + 0] += rw0 * qr
             work[W_ACC + 1] += rw1 * qg
             work[W_ACC + 2] += rw2 * qb
@@ -122,14 +149,19 @@ def spawn_reflection(surf, ray, rw0, rw1, rw2, can_trace, frame, lights, env_map
         # estimator weight F·G2/G1 (Heitz 2018, eq. 19); rw carries F's colour and split
         g2 = smith_vis(n_dot_l, n_dot_v, alpha) * 4.0 * n_dot_l * n_dot_v
         k = g2 / g1 / n_glossy
-        sp = push_ray(stack, sp, ox, oy, oz, lx, ly, lz, rw0 * k, rw1 * k, rw2 * k, 0.0,
-                      depth + 1, 0.0, sr, sg, sb, 0.0)  # fmt: skip
-        set_start(stack, sp, px, py, pz)
+        pushed = push_ray(stack, sp, ox, oy, oz, lx, ly, lz, rw0 * k, rw1 * k, rw2 * k, 0.0,
+                          depth + 1, 0.0, sr, sg, sb, 0.0)  # fmt: skip
+        if pushed > sp:
+            set_start(stack, pushed, px, py, pz)
+            # it sees area lights, weighted against their light samples (shots.kernels.direct)
+            pdf = g1 * ggx_d(hz_, alpha) / (4.0 * n_dot_v)  # = glossy_pdf(surf, v, l)
+            stack[pushed - 1, R_LIGHT_PDF] = n_glossy * pdf
+        sp = pushed
     return sp
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def spawn_coat(surf, ray, wr, wg, wb, coat, can_trace, frame, env_map, stack, sp, work):
+def spawn_coat(surf, ray, wr, wg, wb, coat, can_trace, frame, env, stack, sp, work):
     """The clearcoat: a mirror-like layer of F0 0.04 on its own normal; returns the stack size."""
     vx, vy, vz = -ray[R_D], -ray[R_D + 1], -ray[R_D + 2]
     cx, cy, cz = surf[S_CX], surf[S_CY], surf[S_CZ]
@@ -142,7 +174,7 @@ def spawn_coat(surf, ray, wr, wg, wb, coat, can_trace, frame, env_map, stack, sp
                       ray[R_SIGMA + 2], 0.0)  # fmt: skip
         set_start(stack, sp, surf[S_PX], surf[S_PY], surf[S_PZ])
     else:
-        qr, qg, qb = env_radiance(env_map, frame, qx, qy, qz, work)
+        qr, qg, qb = env_radiance(env, frame, qx, qy, qz, work)
         work[W_ACC + 0] += wr * coat * qr
         work[W_ACC + 1] += wg * coat * qg
         work[W_ACC + 2] += wb * coat * qb

@@ -3,9 +3,11 @@
 At each hit (glTF 2.0 spec Appendix B, with the KHR material extensions):
 
 - emission, and direct light from every look light through shadow rays (``shots.kernels.direct``);
-- diffuse light from the environment's spherical-harmonics irradiance, × occlusion (the sheen
-  layer's share of it too, approximately);
-- specular light from reflection rays (``shots.kernels.reflection``), weighted by Fresnel;
+- diffuse light from the environment, blocked by the model, and light bounced off its other
+  parts (``shots.kernels.ambient``), × occlusion; wide specular lobes and the sheen layer's
+  share (approximately) go the same way;
+- specular light from mirror and glossy reflection rays (``shots.kernels.reflection``),
+  weighted by Fresnel;
 - transmission (``shots.kernels.transmission``);
 - coverage: a BLEND surface continues the camera ray behind it with weight 1 − α.
 
@@ -16,16 +18,16 @@ queries.
 
 from __future__ import annotations
 
+import numpy as np
 from numba import njit
 
+from shots.kernels.ambient import ambient_light
 from shots.kernels.brdf import (
-    INV_PI,
     refract,
     schlick_weight,
 )
 from shots.kernels.bsdf import BLUE, GREEN, RED, clearcoat_fresnel, fresnel_split
 from shots.kernels.direct import direct_light
-from shots.kernels.envlight import sh_irradiance
 from shots.kernels.layout import (
     F_AREA_SAMPLES,
     F_MAX_DEPTH,
@@ -35,6 +37,7 @@ from shots.kernels.layout import (
     W_ACC,
 )
 from shots.kernels.raystack import (
+    R_BOUNCES,
     R_CAMERA,
     R_COVER,
     R_D,
@@ -46,7 +49,7 @@ from shots.kernels.raystack import (
     push_ray,
     set_start,
 )
-from shots.kernels.reflection import spawn_coat, spawn_reflection
+from shots.kernels.reflection import glossy_rays, spawn_coat, spawn_reflection, wide_lobe
 from shots.kernels.sheen import sheen_albedo
 from shots.kernels.surface import (
     S_BASE_B,
@@ -76,7 +79,7 @@ from shots.kernels.transmission import medium_attenuation, spawn_transmission
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
-def shade_hit(surf, ray, t_hit, frame, lights, env_map, bvh, scene, ground, pixel, sample, stack,
+def shade_hit(surf, ray, t_hit, frame, lights, env, bvh, scene, ground, pixel, sample, stack,
               sp, surf2, work, tstack):  # fmt: skip
     """Shade one surface hit of ``ray`` (N_RAY,); adds to work[W_ACC:+4], returns the stack size."""
     seed = int(frame[F_SEED])
@@ -112,12 +115,17 @@ def shade_hit(surf, ray, t_hit, frame, lights, env_map, bvh, scene, ground, pixe
     # emission and direct light
     spp = int(frame[F_SAMPLES])
     area_samples = int(frame[F_AREA_SAMPLES]) if depth == 0 else 1
-    lr, lg, lb = direct_light(surf, vx, vy, vz, lights, area_samples, spp, seed, pixel, sample,
-                              frame, bvh, scene, ground, see_through, surf2, work,
+    can_trace = depth + 1 <= int(frame[F_MAX_DEPTH])
+    n_glossy = glossy_rays(surf, frame, depth, can_trace)
+    lr, lg, lb = direct_light(surf, vx, vy, vz, lights, area_samples, n_glossy, spp, seed, pixel,
+                              sample, frame, bvh, scene, ground, see_through, surf2, work,
                               tstack)  # fmt: skip
-    work[W_ACC + 0] += wr * (lr + under * surf[S_EM_R])
-    work[W_ACC + 1] += wg * (lg + under * surf[S_EM_G])
-    work[W_ACC + 2] += wb * (lb + under * surf[S_EM_B])
+    # emission, except where a diffuse bounce found it (``shots.kernels.ambient``: meshes are
+    # not sampled as lights, and a small bright emitter found by chance is a firefly)
+    em = under if ray[R_BOUNCES] == 0.0 else 0.0
+    work[W_ACC + 0] += wr * (lr + em * surf[S_EM_R])
+    work[W_ACC + 1] += wg * (lg + em * surf[S_EM_G])
+    work[W_ACC + 2] += wb * (lb + em * surf[S_EM_B])
 
     # Fresnel split of the environment light. For transmissive volumes Schlick is taken on the
     # outside angle, and total internal reflection sends everything to the mirror.
@@ -151,26 +159,30 @@ def shade_hit(surf, ray, t_hit, frame, lights, env_map, bvh, scene, ground, pixe
         spec1, diff1, trans1 = spec1 * scaling, diff1 * scaling, trans1 * scaling
         spec2, diff2, trans2 = spec2 * scaling, diff2 * scaling, trans2 * scaling
 
-    # diffuse environment light (SH irradiance), attenuated by the occlusion texture only
-    er, eg, eb = sh_irradiance(frame, nx, ny, nz)
-    work[W_ACC + 0] += wr * diff0 * er * INV_PI * occlusion
-    work[W_ACC + 1] += wg * diff1 * eg * INV_PI * occlusion
-    work[W_ACC + 2] += wb * diff2 * eb * INV_PI * occlusion
-    if sheen > 0.0:
-        # ambient sheen, an approximation: sheenColor·E(N·V)·irradiance(N)/π is exact only for
-        # light that is the same from every direction (no rays traced for the fibre lobe)
-        k = under * e_sheen * INV_PI * occlusion
-        work[W_ACC + 0] += wr * surf[S_SHEEN_R] * k * er
-        work[W_ACC + 1] += wg * surf[S_SHEEN_G] * k * eg
-        work[W_ACC + 2] += wb * surf[S_SHEEN_B] * k * eb
-
-    can_trace = depth + 1 <= int(frame[F_MAX_DEPTH])
-    sp = spawn_reflection(surf, ray, wr * spec0 * occlusion, wg * spec1 * occlusion,
-                          wb * spec2 * occlusion, can_trace, frame, lights, env_map, pixel,
-                          sample, stack, sp, work)  # fmt: skip
+    # environment light the model can block, and light bounced off its other parts; the sheen
+    # layer's share, sheenColor·E(N·V)/π like a diffuse lobe, is exact only for light that is the
+    # same from every direction (no rays are traced for the fibre lobe)
+    wide = wide_lobe(surf)
+    k = under * e_sheen
+    d0 = diff0 + k * surf[S_SHEEN_R]
+    d1 = diff1 + k * surf[S_SHEEN_G]
+    d2 = diff2 + k * surf[S_SHEEN_B]
+    s0, s1, s2 = (spec0, spec1, spec2) if wide else (0.0, 0.0, 0.0)
+    sp, br, bg, bb, cr, cg, cb = ambient_light(surf, ray, wr * occlusion, wg * occlusion,
+                                               wb * occlusion, d0, d1, d2, s0, s1, s2, can_trace,
+                                               np.inf, frame, env, bvh, scene, ground, pixel,
+                                               sample, stack, sp, surf2, work,
+                                               tstack)  # fmt: skip
+    work[W_ACC + 0] += br + cr
+    work[W_ACC + 1] += bg + cg
+    work[W_ACC + 2] += bb + cb
+    if not wide:
+        sp = spawn_reflection(surf, ray, wr * spec0 * occlusion, wg * spec1 * occlusion,
+                              wb * spec2 * occlusion, can_trace, frame, lights, env, pixel,
+                              sample, stack, sp, work)  # fmt: skip
     if coat > 0.0:
-        sp = spawn_coat(surf, ray, wr, wg, wb, coat, can_trace, frame, env_map, stack, sp, work)
+        sp = spawn_coat(surf, ray, wr, wg, wb, coat, can_trace, frame, env, stack, sp, work)
     if transmission > 0.0 and not tir:
         sp = spawn_transmission(surf, ray, tdx, tdy, tdz, wr * trans0, wg * trans1, wb * trans2,
-                                can_trace, env_map, frame, stack, sp, work)  # fmt: skip
+                                can_trace, env, frame, stack, sp, work)  # fmt: skip
     return sp

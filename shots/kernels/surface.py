@@ -41,6 +41,7 @@ from shots.scene import (
     P_BASE_G,
     P_BASE_R,
     P_CLEARCOAT,
+    P_CLEARCOAT_NORMAL_SCALE,
     P_CLEARCOAT_ROUGHNESS,
     P_DOUBLE_SIDED,
     P_EMISSIVE_B,
@@ -64,6 +65,7 @@ from shots.scene import (
     P_UNLIT,
     T_BASE_COLOR,
     T_CLEARCOAT,
+    T_CLEARCOAT_NORMAL,
     T_CLEARCOAT_ROUGHNESS,
     T_EMISSIVE,
     T_METALLIC_ROUGHNESS,
@@ -307,37 +309,25 @@ def mesh_surface(k, b1, b2, dx, dy, dz, cone, verts, faces, materials, texels, t
     surf[S_SHEEN_B] = sheen_b
     surf[S_SHEEN_ROUGHNESS] = min(max(sheen_roughness, 0.0), 1.0)
 
-    # --- normal map (spec §Materials "normalTexture"; tangent w = bitangent sign) --------------
+    # --- normal maps (spec §Materials "normalTexture"; KHR_materials_clearcoat
+    # "clearcoatNormalTexture" bends the coat's normal, which starts from the interpolated one)
     if sample_slot(materials, texels, tex_info, m, T_NORMAL, work):
-        scale = materials[m, P_NORMAL_SCALE]
-        mx = (2.0 * work[W_TEXEL] - 1.0) * scale
-        my = (2.0 * work[W_TEXEL + 1] - 1.0) * scale
-        mz = 2.0 * work[W_TEXEL + 2] - 1.0
-        t0, t1, t2 = V_T, V_T + 1, V_T + 2
-        tx = b0 * verts[i0, t0] + b1 * verts[i1, t0] + b2 * verts[i2, t0]
-        ty = b0 * verts[i0, t1] + b1 * verts[i1, t1] + b2 * verts[i2, t1]
-        tz = b0 * verts[i0, t2] + b1 * verts[i1, t2] + b2 * verts[i2, t2]
-        sign = verts[i0, V_T + 3]
-        if tx * tx + ty * ty + tz * tz < 1e-12:
-            uv_set = int(materials[m, M_SLOTS + SLOT_WIDTH * T_NORMAL + SLOT_SET])
-            tx, ty, tz, sign = uv_tangent(k, verts, faces, uv_set, nx, ny, nz)
-        sign = 1.0 if sign >= 0.0 else -1.0
-        # Gram–Schmidt against the interpolated normal, then B = (N × T)·w
-        d = tx * nx + ty * ny + tz * nz
-        tx, ty, tz, tl = normalize3(tx - d * nx, ty - d * ny, tz - d * nz)
-        if tl > 0.0:
-            bx = (ny * tz - nz * ty) * sign
-            by = (nz * tx - nx * tz) * sign
-            bz = (nx * ty - ny * tx) * sign
-            px, py, pz, pl = normalize3(
-                tx * mx + bx * my + nx * mz, ty * mx + by * my + ny * mz, tz * mx + bz * my + nz * mz
-            )
-            if pl > 0.0:
-                nx, ny, nz = px, py, pz
+        nx, ny, nz = mapped_normal(k, i0, i1, i2, b0, b1, b2, verts, faces, materials, m,
+                                   T_NORMAL, materials[m, P_NORMAL_SCALE], nx, ny, nz, work)
+    if sample_slot(materials, texels, tex_info, m, T_CLEARCOAT_NORMAL, work):
+        cx, cy, cz = mapped_normal(k, i0, i1, i2, b0, b1, b2, verts, faces, materials, m,
+                                   T_CLEARCOAT_NORMAL, materials[m, P_CLEARCOAT_NORMAL_SCALE],
+                                   surf[S_CX], surf[S_CY], surf[S_CZ], work)
+        surf[S_CX] = cx
+        surf[S_CY] = cy
+        surf[S_CZ] = cz
 
     # --- sides (spec §Materials "doubleSided"; KHR_materials_volume ignores it) ---------------
     surf[S_FRONT] = 1.0 if front else 0.0
-    skip = not front and materials[m, P_DOUBLE_SIDED] == 0.0 and transmission == 0.0
+    # a volume (KHR_materials_volume: thicknessFactor > 0) needs its back faces to leave the
+    # medium whatever doubleSided says; single-sided thin glass culls them (glTF 2.0 §3.9.5)
+    volume = materials[m, P_THICKNESS] > 0.0
+    skip = not front and materials[m, P_DOUBLE_SIDED] == 0.0 and not volume
     surf[S_SKIP] = 1.0 if skip else 0.0
     if not front:
         gx, gy, gz = -gx, -gy, -gz
@@ -357,6 +347,54 @@ def mesh_surface(k, b1, b2, dx, dy, dz, cone, verts, faces, materials, texels, t
     surf[S_CY] = cy
     surf[S_CZ] = cz
     return m
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def mapped_normal(k, i0, i1, i2, b0, b1, b2, verts, faces, materials, m, slot, scale, nx, ny, nz,
+                  work):
+    """The normal (nx, ny, nz) bent by the tangent-space texel in work[W_TEXEL:+3] (glTF 2.0 spec
+    §3.9.3 "normalTexture": x, y scaled by ``scale``; tangent w = bitangent sign).
+
+    Under KHR_texture_transform the texture's axes turn with the transform's rotation (its
+    README: the tangent frame must be rotated too), so T and B are turned by the angle of the
+    slot's affine map before the texel is applied.
+    """
+    mx = (2.0 * work[W_TEXEL] - 1.0) * scale
+    my = (2.0 * work[W_TEXEL + 1] - 1.0) * scale
+    mz = 2.0 * work[W_TEXEL + 2] - 1.0
+    t0, t1, t2 = V_T, V_T + 1, V_T + 2
+    tx = b0 * verts[i0, t0] + b1 * verts[i1, t0] + b2 * verts[i2, t0]
+    ty = b0 * verts[i0, t1] + b1 * verts[i1, t1] + b2 * verts[i2, t1]
+    tz = b0 * verts[i0, t2] + b1 * verts[i1, t2] + b2 * verts[i2, t2]
+    sign = verts[i0, V_T + 3]
+    col = M_SLOTS + SLOT_WIDTH * slot
+    if tx * tx + ty * ty + tz * tz < 1e-12:
+        tx, ty, tz, sign = uv_tangent(k, verts, faces, int(materials[m, col + SLOT_SET]),
+                                      nx, ny, nz)
+    sign = 1.0 if sign >= 0.0 else -1.0
+    # Gram–Schmidt against the normal, then B = (N × T)·w
+    d = tx * nx + ty * ny + tz * nz
+    tx, ty, tz, tl = normalize3(tx - d * nx, ty - d * ny, tz - d * nz)
+    if tl == 0.0:
+        return nx, ny, nz
+    bx = (ny * tz - nz * ty) * sign
+    by = (nz * tx - nx * tz) * sign
+    bz = (nx * ty - ny * tx) * sign
+    # the transform's rotation from its first column (c·sx, -s·sx): u' = c u + s v, so the
+    # texture's +u' runs along c T - s B and its up axis along s T + c B
+    a00 = materials[m, col + SLOT_A]
+    a10 = materials[m, col + SLOT_A + 3]
+    length = math.sqrt(a00 * a00 + a10 * a10)
+    if length > 0.0:
+        c = a00 / length
+        s = -a10 / length
+        tx, ty, tz, bx, by, bz = (c * tx - s * bx, c * ty - s * by, c * tz - s * bz,
+                                  s * tx + c * bx, s * ty + c * by, s * tz + c * bz)
+    px, py, pz, pl = normalize3(tx * mx + bx * my + nx * mz, ty * mx + by * my + ny * mz,
+                                tz * mx + bz * my + nz * mz)
+    if pl > 0.0:
+        return px, py, pz
+    return nx, ny, nz
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)

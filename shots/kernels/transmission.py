@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
 from numba import njit
 
 from shots.kernels.envlight import env_radiance
@@ -25,8 +24,6 @@ from shots.kernels.raystack import (
     set_start,
 )
 from shots.kernels.surface import (
-    S_ATT_DISTANCE,
-    S_ATT_R,
     S_FRONT,
     S_PX,
     S_PY,
@@ -34,6 +31,7 @@ from shots.kernels.surface import (
     S_THICKNESS,
 )
 from shots.kernels.visibility import offset_point
+from shots.kernels.visibility import volume_absorption as absorption  # shared with shadow rays
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
@@ -54,20 +52,8 @@ def medium_attenuation(ray, surf, wr, wg, wb):
     return wr, wg, wb
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
-def absorption(surf, c):
-    """Beer–Lambert coefficient σ = −ln(c)/d of channel ``c`` (KHR_materials_volume)."""
-    d = surf[S_ATT_DISTANCE]
-    col = surf[S_ATT_R + c]
-    if not d < np.inf or col >= 1.0:
-        return 0.0
-    if col <= 0.0:
-        return 1e30
-    return -math.log(col) / d
-
-
 @njit(cache=True, error_model="numpy", _nrt=False)
-def spawn_transmission(surf, ray, tdx, tdy, tdz, tw0, tw1, tw2, can_trace, env_map, frame,
+def spawn_transmission(surf, ray, tdx, tdy, tdz, tw0, tw1, tw2, can_trace, env, frame,
                        stack, sp, work):  # fmt: skip
     """Push the transmitted ray with weight ``tw`` along ``t``, or add the environment seen
     along it; returns the stack size. The ray carries the absorption of the medium it enters.
@@ -87,7 +73,7 @@ def spawn_transmission(surf, ray, tdx, tdy, tdz, tw0, tw1, tw2, can_trace, env_m
                       0.0, nsr, nsg, nsb, 0.0)  # fmt: skip
         set_start(stack, sp, surf[S_PX], surf[S_PY], surf[S_PZ])
     else:
-        qr, qg, qb = env_radiance(env_map, frame, tdx, tdy, tdz, work)
+        qr, qg, qb = env_radiance(env, frame, tdx, tdy, tdz, work)
         work[W_ACC + 0] += tw0 * qr
         work[W_ACC + 1] += tw1 * qg
         work[W_ACC + 2] += tw2 * qb

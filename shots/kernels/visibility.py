@@ -7,9 +7,12 @@ surfaces in scenes that have them.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from numba import njit
 
+from shots.kernels.brdf import f0_from_ior, schlick_weight
 from shots.kernels.ground import (
     G_B,
     G_G,
@@ -23,18 +26,24 @@ from shots.kernels.ground import (
 from shots.kernels.layout import W_CONE, W_SPREAD
 from shots.kernels.offset import offset_origin_one
 from shots.kernels.surface import (
-    S_BASE_B,
-    S_BASE_G,
+    S_ATT_DISTANCE,
+    S_ATT_R,
     S_BASE_R,
+    S_FRONT,
     S_GX,
     S_GY,
     S_GZ,
+    S_IOR,
     S_METALLIC,
     S_OPACITY,
     S_PX,
     S_PY,
     S_PZ,
+    S_ROUGHNESS,
     S_SKIP,
+    S_SPEC_R,
+    S_SPECULAR,
+    S_THICKNESS,
     S_TRANSMISSION,
     ground_surface,
     mesh_surface,
@@ -128,13 +137,19 @@ def shadow_ray(frame, bvh, scene, ground, see_through, ox, oy, oz, dx, dy, dz, t
 def light_through(bvh, scene, ox, oy, oz, dx, dy, dz, t_max, surf, work, tstack):
     """Light let through along a shadow ray past see-through surfaces up to ``t_max``.
 
-    Cut-outs pass it; BLEND surfaces pass 1 − α; transmissive surfaces pass their tint (no
-    refraction: caustics are out of scope). Returns r, g, b in [0, 1].
+    Cut-outs pass it; BLEND surfaces pass 1 − α; transmissive surfaces pass what the camera path
+    passes (``shade.py``/``transmission.py``): Fresnel transmittance 1 − F at each interface,
+    the base colour once per thin wall or once where a volume is entered, and Beer–Lambert
+    absorption over the distance inside a volume (KHR_materials_transmission,
+    KHR_materials_volume). Shadow rays do not refract (caustics are out of scope), so both
+    interfaces of a volume see the ray's own angle, as a slab's would. Returns r, g, b in
+    [0, 1].
     """
     node_bounds, node_links, tri_verts, tri_ids = bvh
     verts, faces, materials, texels, tex_info = scene
     tr, tg, tb = 1.0, 1.0, 1.0
     t_lo = 0.0
+    t_entered = 0.0  # where the ray last entered a volume (0: it starts inside or outside)
     for _ in range(MAX_SKIPS):
         t, k, b1, b2 = closest_hit_one(
             node_bounds, node_links, tri_verts, tri_ids, ox, oy, oz, dx, dy, dz, t_lo, t_max,
@@ -147,10 +162,47 @@ def light_through(bvh, scene, ox, oy, oz, dx, dy, dz, t_max, surf, work, tstack)
                      work)  # fmt: skip
         a = surf[S_OPACITY]
         through = (1.0 - surf[S_METALLIC]) * surf[S_TRANSMISSION]
-        tr *= (1.0 - a) + a * through * surf[S_BASE_R]
-        tg *= (1.0 - a) + a * through * surf[S_BASE_G]
-        tb *= (1.0 - a) + a * through * surf[S_BASE_B]
+        volume = surf[S_THICKNESS] > 0.0
+        entering = surf[S_FRONT] != 0.0
+        tint = not (volume and not entering)  # a volume is tinted once, where light enters it
+        cos_i = abs(dx * surf[S_GX] + dy * surf[S_GY] + dz * surf[S_GZ])
+        tr *= (1.0 - a) + a * through * crossing_transmittance(surf, 0, cos_i, tint)
+        tg *= (1.0 - a) + a * through * crossing_transmittance(surf, 1, cos_i, tint)
+        tb *= (1.0 - a) + a * through * crossing_transmittance(surf, 2, cos_i, tint)
+        if volume and through > 0.0:
+            if entering:
+                t_entered = t
+            else:  # leaving: Beer–Lambert over the path inside
+                inside = t - t_entered
+                tr *= math.exp(-volume_absorption(surf, 0) * inside)
+                tg *= math.exp(-volume_absorption(surf, 1) * inside)
+                tb *= math.exp(-volume_absorption(surf, 2) * inside)
+                t_entered = 0.0
         if max(tr, tg, tb) <= 0.0:
             return 0.0, 0.0, 0.0
         t_lo = t * (1.0 + 1e-7) + 1e-9
     return 0.0, 0.0, 0.0
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def crossing_transmittance(surf, c, cos_i, tint):
+    """Channel ``c`` let through one interface: (1 − F)·(base colour if ``tint``), F the Schlick
+    (1994) Fresnel of the dielectric F0 (KHR_materials_ior, KHR_materials_specular) with F90
+    lowered by roughness, as the camera path's environment split does."""
+    f0 = min(f0_from_ior(surf[S_IOR]) * surf[S_SPEC_R + c], 1.0) * surf[S_SPECULAR]
+    f90 = max(surf[S_SPECULAR] * max(1.0 - surf[S_ROUGHNESS], 0.0), f0)
+    fresnel = f0 + (f90 - f0) * schlick_weight(cos_i)
+    return (1.0 - fresnel) * (surf[S_BASE_R + c] if tint else 1.0)
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def volume_absorption(surf, c):
+    """Beer–Lambert σ = −ln(attenuationColor)/attenuationDistance of channel ``c``
+    (KHR_materials_volume); 0 without attenuation."""
+    d = surf[S_ATT_DISTANCE]
+    col = surf[S_ATT_R + c]
+    if not d < np.inf or col >= 1.0:
+        return 0.0
+    if col <= 0.0:
+        return 1e30
+    return -math.log(col) / d
