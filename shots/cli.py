@@ -16,6 +16,7 @@ import typer
 from rich.console import Console
 from rich.table import Table
 
+import shots
 from shots.batch.cli_command import batch
 from shots.cli_help import FLAG, ShotsCommand, ShotsGroup
 from shots.errors import ShotsError
@@ -41,6 +42,24 @@ def warn(message: str, kind: str = "warning") -> None:
     """Print one warning line on stderr, unwrapped (a hint must stay greppable as one line);
     ``kind`` labels it (``"ignored"`` for what the model asks for and is not rendered)."""
     err.print(f"[yellow]{kind}:[/] {literal(message)}", highlight=False, soft_wrap=True)
+
+
+def show_version(value: bool) -> None:
+    """``--version``: print the version (the renderer version in every frame's key) and stop."""
+    if value:
+        out.print(f"shots {shots.__version__}", highlight=False)
+        raise typer.Exit()
+
+
+@app.callback()
+def options(
+    version: Annotated[
+        bool,
+        typer.Option("--version", metavar=FLAG, callback=show_version, is_eager=True,
+                     help="Print the version and exit."),
+    ] = False,
+) -> None:
+    """Options that come before the command."""
 
 
 def parse_size(text: str | None) -> tuple[int, int] | None:
@@ -97,19 +116,21 @@ def render(
     from shots.limits import preset_with_limits
     from shots.pipeline import render_model
     from shots.presets import load_preset
+    from shots.warmup import announce_compiles
 
     try:
-        written = render_model(
-            model,
-            output,
-            preset_with_limits(load_preset(preset), limit),
-            size=parse_size(size),
-            samples=parse_samples(samples),
-            scene_choice=parse_scene(scene),
-            variant=variant,
-            on_frame=lambda r: out.print(f"wrote {literal(r.path)}", highlight=False),
-            on_warning=lambda text: warn(f"{model}: {text}", getattr(text, "kind", "warning")),
-        )
+        with announce_compiles(err):
+            written = render_model(
+                model,
+                output,
+                preset_with_limits(load_preset(preset), limit),
+                size=parse_size(size),
+                samples=parse_samples(samples),
+                scene_choice=parse_scene(scene),
+                variant=variant,
+                on_frame=lambda r: out.print(f"wrote {literal(r.path)}", highlight=False),
+                on_warning=lambda text: warn(f"{model}: {text}", getattr(text, "kind", "warning")),
+            )
     except ShotsError as exc:
         fail(str(exc))
     out.print(f"{len(written)} image(s) in {literal(output)}", highlight=False)

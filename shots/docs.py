@@ -209,8 +209,8 @@ def cli_reference() -> str:
     lines = [
         _first_paragraph(group.help),
         "",
-        "`shots --help` lists the commands and `shots COMMAND --help` shows one of them; the "
-        "same text, generated from the code, follows.",
+        "`shots --help` lists the commands, `shots COMMAND --help` shows one of them and "
+        "`shots --version` prints the version; the same text, generated from the code, follows.",
     ]
     for name, command in _commands(group, context):
         lines += ["", *command_reference(name, command)]

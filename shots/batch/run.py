@@ -475,12 +475,23 @@ class Batch:
 
     def _get_runner(self, frames: int):
         """The runner, started on first use with no more local workers than ``frames``."""
+        if self.runner is None and not self.cluster:
+            self._compile_kernels()
         if self.runner is None and self.pool is not None:
             self.runner = self.pool
         elif self.runner is None:
             workers = max(1, min(self.workers, frames))
             self.runner = make_runner(workers, self.cluster, self.threads, self.cluster_tls)
         return self.runner
+
+    def _compile_kernels(self) -> None:
+        """Compile (or load) the kernels here, once, before local workers start: they then only
+        load them from the cache, where each would otherwise compile them at the same time."""
+        from shots.warmup import announce_compiles, compile_renderer
+
+        reporter = self.reporter
+        with announce_compiles(reporter.console, reporter.progress, reporter.quiet):
+            compile_renderer()
 
     def _inspect(self, state: ModelState) -> None:
         """Hash the model and read its manifest; a model that cannot be read fails here, alone."""

@@ -110,7 +110,7 @@ def on_dask_worker(fn, host_threads: dict[str, int], version: str, model: str, *
     """
     from urllib.parse import urlsplit
 
-    from distributed import get_worker
+    from dask.distributed import get_worker
 
     import shots
 

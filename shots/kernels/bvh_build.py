@@ -270,7 +270,7 @@ def copy6(dst, src):
         dst[j] = src[j]
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def set3(dst, a, b, c):
     dst[0], dst[1], dst[2] = a, b, c
 
@@ -356,7 +356,7 @@ def build_binary(prims, bins, c_trav, c_isect, max_leaf):
     node_count = np.zeros(cap, np.int32)
     box = np.empty(6, np.float32)
     cbox = np.empty(6, np.float32)
-    range_bounds(prims, 0, n, box, cbox)
+    range_bounds(prims, np.int64(0), n, box, cbox)  # not Literal[int](0): one specialisation
     # Top: split big nodes (the leftmost first); collect the subtrees left to build.
     counts = np.zeros((3, bins), np.int64)
     bin_boxes = np.empty((3, bins, 6), np.float32)
@@ -415,7 +415,7 @@ def build_binary(prims, bins, c_trav, c_isect, max_leaf):
     return order, node_box[:used], node_left[:used], node_start[:used], node_count[:used]
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def leaf_link(start, count):
     """Encode a leaf range as a negative link."""
     return ~((start << LEAF_BITS) | count)

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 from numba import njit
 
 from shots.kernels.ambient import limit_indirect, take_back_sky
@@ -82,7 +83,7 @@ def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env, b
     set_ray(ray, ox, oy, oz, dx, dy, dz, 1.0, 1.0, 1.0, 1.0, 0, near_start(frame, dx, dy, dz),
             0.0, 0.0, 0.0, 1.0)  # fmt: skip
     ray[R_CONE], ray[R_SPREAD] = pixel_cone(frame)
-    sp = 0
+    sp = np.int64(0)  # not Literal[int](0), which type inference would compile shade_hit for
     while True:
         rox, roy, roz = ray[R_O], ray[R_O + 1], ray[R_O + 2]
         rdx, rdy, rdz = ray[R_D], ray[R_D + 1], ray[R_D + 2]

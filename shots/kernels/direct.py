@@ -54,7 +54,7 @@ from shots.kernels.surface import (
 from shots.kernels.visibility import offset_point, shadow_ray
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def direct_light(surf, vx, vy, vz, lights, area_samples, n_glossy, spp, seed, pixel, sample,
                  frame, bvh, scene, ground, see_through, surf2, work, tstack):  # fmt: skip
     """Reflected radiance from all look lights with shadow rays; returns r, g, b.
@@ -123,7 +123,7 @@ def lights_seen(lights, frame, ray, t_hit, work):
             work[W_ACC + 2] += ray[R_W + 2] * lights[k, L_B] * w
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def shadow_amount(surf, ray, lights, area_samples, spp, seed, pixel, sample, frame, env, bvh,
                   scene, ground, see_through, stack, surf2, work, tstack):  # fmt: skip
     """How much of the light a shadow-catcher point loses to the product, in [0, 1].

@@ -65,50 +65,62 @@ def render_image(out, frame, lights, env, ground, bvh, scene, active, counts):
     ground : (N_GROUND,) float64; bvh, scene : see the module docstring.
     active : (h, w) uint8, non-zero where the pixel takes this set.
     counts : (h, w) int32, each active pixel's count grows by the samples it traced.
+
+    The parallel loop only allocates each work item's scratch and calls ``render_tiles``: numba's
+    parallel passes and type inference work on this function's whole body, so it stays small.
     """
+    for item in prange(WORK_ITEMS):
+        # scratch owned here; render_tiles gets borrowed (uncounted) views of everything
+        owned = (new_stack(), np.empty((STACK_RAYS, N_RAY), np.float64),
+                 np.zeros((2, N_SURFACE), np.float64), np.zeros(N_WORK, np.float64))  # fmt: skip
+        scratch = (borrow(owned[0]), borrow(owned[1]), borrow(owned[2]), borrow(owned[3]))
+        b_env = (borrow(env[0]), borrow(env[1]), borrow(env[2]))
+        b_bvh = (borrow(bvh[0]), borrow(bvh[1]), borrow(bvh[2]), borrow(bvh[3]))
+        b_scene = (borrow(scene[0]), borrow(scene[1]), borrow(scene[2]), borrow(scene[3]),
+                   borrow(scene[4]))  # fmt: skip
+        render_tiles(np.int64(item), borrow(out), borrow(frame), borrow(lights), b_env,
+                     borrow(ground), b_bvh, b_scene, borrow(active), borrow(counts),
+                     scratch)  # fmt: skip
+        owned[3][W_DIM] = 0.0  # the scratch stays owned (alive) until here, past its views
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def render_tiles(item, out, frame, lights, env, ground, bvh, scene, active, counts, scratch):
+    """Render the tiles dealt to work item ``item`` (every WORK_ITEMS-th tile from ``item``).
+
+    ``scratch`` is (traversal stack, ray stack, two surface records, work record), this item's.
+    """
+    tstack, stack, surfs, work = scratch
+    surf, surf2 = surfs[0], surfs[1]
     width = int(frame[F_WIDTH])
     height = int(frame[F_HEIGHT])
     spp = max(int(frame[F_SAMPLES]), 1)
     seed = int(frame[F_SEED])
     tiles_x = (width + TILE - 1) // TILE
     tiles = tiles_x * ((height + TILE - 1) // TILE)
-    for item in prange(WORK_ITEMS):
-        # scratch owned here; the loops below use borrowed (uncounted) views of everything
-        owned = (new_stack(), np.empty((STACK_RAYS, N_RAY), np.float64),
-                 np.zeros((2, N_SURFACE), np.float64), np.zeros(N_WORK, np.float64))  # fmt: skip
-        tstack, stack, surfs, work = borrow(owned[0]), borrow(owned[1]), borrow(owned[2]), borrow(
-            owned[3]
-        )
-        surf, surf2 = surfs[0], surfs[1]
-        b_frame, b_lights, b_ground = borrow(frame), borrow(lights), borrow(ground)
-        b_env = (borrow(env[0]), borrow(env[1]), borrow(env[2]))
-        b_bvh = (borrow(bvh[0]), borrow(bvh[1]), borrow(bvh[2]), borrow(bvh[3]))
-        b_scene = (borrow(scene[0]), borrow(scene[1]), borrow(scene[2]), borrow(scene[3]),
-                   borrow(scene[4]))  # fmt: skip
-        for tile in range(item, tiles, WORK_ITEMS):
-            x0 = (tile % tiles_x) * TILE
-            y0 = (tile // tiles_x) * TILE
-            for j in range(y0, min(y0 + TILE, height)):
-                for i in range(x0, min(x0 + TILE, width)):
-                    if active[j, i] == 0:
-                        continue
-                    pixel = j * width + i
-                    for c in range(4):
-                        work[W_ACC + c] = 0.0
-                    for s in range(spp):
-                        fx, fy = sample_offset(spp, s, seed, pixel)
-                        ox, oy, oz, dx, dy, dz = camera_ray(b_frame, i + fx, j + fy)
-                        f = min(max((j + fy) / height, 0.0), 1.0)
-                        bg_r = (1.0 - f) * frame[F_BG_TOP] + f * frame[F_BG_BOTTOM]
-                        bg_g = (1.0 - f) * frame[F_BG_TOP + 1] + f * frame[F_BG_BOTTOM + 1]
-                        bg_b = (1.0 - f) * frame[F_BG_TOP + 2] + f * frame[F_BG_BOTTOM + 2]
-                        work[W_DIM] = 1.0  # dimension 0 placed the sample
-                        trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, b_frame, b_lights,
-                                     b_env, b_bvh, b_scene, b_ground, pixel, s, stack, surf,
-                                     surf2, work, tstack)  # fmt: skip
-                        counts[j, i] += 1
-                    for c in range(4):
-                        value = work[W_ACC + c] / spp
-                        # a degenerate input (NaN normal, zero-area light) must not spread
-                        out[j, i, c] = value if math.isfinite(value) else 0.0
-        owned[3][W_DIM] = 0.0  # the scratch stays owned (alive) until here, past its views
+    for tile in range(item, tiles, WORK_ITEMS):
+        x0 = (tile % tiles_x) * TILE
+        y0 = (tile // tiles_x) * TILE
+        for j in range(y0, min(y0 + TILE, height)):
+            for i in range(x0, min(x0 + TILE, width)):
+                if active[j, i] == 0:
+                    continue
+                pixel = j * width + i
+                for c in range(4):
+                    work[W_ACC + c] = 0.0
+                for s in range(spp):
+                    fx, fy = sample_offset(spp, s, seed, pixel)
+                    ox, oy, oz, dx, dy, dz = camera_ray(frame, i + fx, j + fy)
+                    f = min(max((j + fy) / height, 0.0), 1.0)
+                    bg_r = (1.0 - f) * frame[F_BG_TOP] + f * frame[F_BG_BOTTOM]
+                    bg_g = (1.0 - f) * frame[F_BG_TOP + 1] + f * frame[F_BG_BOTTOM + 1]
+                    bg_b = (1.0 - f) * frame[F_BG_TOP + 2] + f * frame[F_BG_BOTTOM + 2]
+                    work[W_DIM] = 1.0  # dimension 0 placed the sample
+                    trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights,
+                                 env, bvh, scene, ground, pixel, s, stack, surf,
+                                 surf2, work, tstack)  # fmt: skip
+                    counts[j, i] += 1
+                for c in range(4):
+                    value = work[W_ACC + c] / spp
+                    # a degenerate input (NaN normal, zero-area light) must not spread
+                    out[j, i, c] = value if math.isfinite(value) else 0.0

@@ -99,7 +99,7 @@ def glossy_pdf(surf, vx, vy, vz, lx, ly, lz):
     return smith_g1(n_dot_v, alpha) * d / (4.0 * n_dot_v)
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def spawn_reflection(surf, ray, rw0, rw1, rw2, can_trace, frame, lights, env, pixel, sample,
                      stack, sp, work):  # fmt: skip
     """Reflect light of weight ``rw`` off a mirror or glossy base layer; returns the stack size."""
@@ -160,7 +160,7 @@ def spawn_reflection(surf, ray, rw0, rw1, rw2, can_trace, frame, lights, env, pi
     return sp
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def spawn_coat(surf, ray, wr, wg, wb, coat, can_trace, frame, env, stack, sp, work):
     """The clearcoat: a mirror-like layer of F0 0.04 on its own normal; returns the stack size."""
     vx, vy, vz = -ray[R_D], -ray[R_D + 1], -ray[R_D + 2]

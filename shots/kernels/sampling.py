@@ -24,7 +24,7 @@ def pcg_hash(x):
     return ((word >> 22) ^ word) & MASK32
 
 
-@njit(cache=True, error_model="numpy", _nrt=False)
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def random_bits(seed, pixel, sample, dim):
     """32 random bits addressed by their coordinates (all non-negative ints)."""
     h = pcg_hash((seed & MASK32) ^ pcg_hash(pixel & MASK32))

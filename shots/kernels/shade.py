@@ -26,7 +26,7 @@ from shots.kernels.brdf import (
     refract,
     schlick_weight,
 )
-from shots.kernels.bsdf import clearcoat_fresnel, fresnel_split
+from shots.kernels.bsdf import BLUE, GREEN, RED, clearcoat_fresnel, fresnel_split
 from shots.kernels.direct import direct_light
 from shots.kernels.layout import (
     F_AREA_SAMPLES,
@@ -145,9 +145,9 @@ def shade_hit(surf, ray, t_hit, frame, lights, env, bvh, scene, ground, pixel, s
     smooth = max(1.0 - surf[S_ROUGHNESS], 0.0)
     occlusion = surf[S_OCCLUSION]
     tint = not (volume and not front)  # a volume is tinted once, where light enters it
-    spec0, diff0, trans0 = fresnel_split(surf, 0, fw, smooth, under, tir, tint)
-    spec1, diff1, trans1 = fresnel_split(surf, 1, fw, smooth, under, tir, tint)
-    spec2, diff2, trans2 = fresnel_split(surf, 2, fw, smooth, under, tir, tint)
+    spec0, diff0, trans0 = fresnel_split(surf, RED, fw, smooth, under, tir, tint)
+    spec1, diff1, trans1 = fresnel_split(surf, GREEN, fw, smooth, under, tir, tint)
+    spec2, diff2, trans2 = fresnel_split(surf, BLUE, fw, smooth, under, tir, tint)
     sheen = max(surf[S_SHEEN_R], surf[S_SHEEN_G], surf[S_SHEEN_B])
     e_sheen = 0.0
     if sheen > 0.0:

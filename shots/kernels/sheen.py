@@ -106,14 +106,14 @@ def albedo_table() -> np.ndarray:
 ALBEDO = albedo_table()  # under 0.1 s at import; frozen into the compiled kernels as a constant
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def clamp_roughness(roughness):
     """Sheen roughness in [ROUGHNESS_MIN, 1] (the table's range; D is a delta at 0)."""
     r = roughness if roughness > ROUGHNESS_MIN else ROUGHNESS_MIN  # NaN → the floor
     return r if r < 1.0 else 1.0
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def charlie_d(n_dot_h, alpha):
     """Charlie distribution D(h) = (2 + 1/α)·sin^(1/α)θ_h / (2π) (Estevez & Kulla 2017)."""
     if n_dot_h <= 0.0:
@@ -122,20 +122,20 @@ def charlie_d(n_dot_h, alpha):
     return (2.0 + 1.0 / alpha) * sin2 ** (0.5 / alpha) * (0.5 / math.pi)
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def sheen_visibility(n_dot_l, n_dot_v):
     """V = 1 / (4 (N·L + N·V − N·L·N·V)) (Ashikhmin & Premože 2007; KHR_materials_sheen)."""
     return 0.25 / (n_dot_l + n_dot_v - n_dot_l * n_dot_v)
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def sheen_lobe(n_dot_l, n_dot_v, n_dot_h, roughness):
     """D·V of the sheen layer for colour 1 (multiply by sheenColor and N·L)."""
     r = clamp_roughness(roughness)
     return charlie_d(n_dot_h, r * r) * sheen_visibility(n_dot_l, n_dot_v)
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def sheen_albedo(n_dot_v, roughness):
     """E(N·V): the sheen lobe's directional albedo for colour 1, bilinear in the table."""
     mu = n_dot_v if n_dot_v > 0.0 else 0.0  # written so that NaN lands in the table too
@@ -154,7 +154,7 @@ def sheen_albedo(n_dot_v, roughness):
     return math.exp(rest + lead)
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def albedo_scaling(sheen_max, n_dot_v, roughness):
     """1 − max(sheenColor)·E(N·V), what the base layer keeps under the sheen (≥ 0)."""
     return max(1.0 - sheen_max * sheen_albedo(n_dot_v, roughness), 0.0)

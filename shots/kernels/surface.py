@@ -118,18 +118,18 @@ def sample_slot(materials, texels, tex_info, m, slot, work):
     tex = int(materials[m, M_SLOTS + SLOT_WIDTH * slot + SLOT_TEX])
     if tex < 0:
         return False
-    sample_slot_texture(materials, texels, tex_info, m, slot, tex, work)
+    sample_slot_texture(materials, texels, tex_info, m, M_SLOTS + SLOT_WIDTH * slot, tex, work)
     return True
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def sample_slot_texture(materials, texels, tex_info, m, slot, tex, work):
-    """Texture ``tex`` at the slot's uv: its TEXCOORD set (work[W_UV:+4] holds both) through its
-    KHR_texture_transform affine map; the texel goes to work[W_TEXEL:+4].
+def sample_slot_texture(materials, texels, tex_info, m, col, tex, work):
+    """Texture ``tex`` at the uv of the slot whose columns start at ``col``: its TEXCOORD set
+    (work[W_UV:+4] holds both) through its KHR_texture_transform affine map; the texel goes to
+    work[W_TEXEL:+4].
 
     The level of detail adds to the set's log2 footprint (work[W_LOD + set]) half the log2 of
     the texels per unit of uv area: the texture's size times the affine map's area scale."""
-    col = M_SLOTS + SLOT_WIDTH * slot
     s = min(max(int(materials[m, col + SLOT_SET]), 0), 1)
     u = work[W_UV + 2 * s]
     v = work[W_UV + 2 * s + 1]

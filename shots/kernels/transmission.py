@@ -34,7 +34,7 @@ from shots.kernels.visibility import offset_point
 from shots.kernels.visibility import volume_absorption as absorption  # shared with shadow rays
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def medium_attenuation(ray, surf, wr, wg, wb):
     """The ray's weight after Beer–Lambert absorption along the segment it just travelled.
 
@@ -52,7 +52,7 @@ def medium_attenuation(ray, surf, wr, wg, wb):
     return wr, wg, wb
 
 
-@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+@njit(cache=True, error_model="numpy", _nrt=False)
 def spawn_transmission(surf, ray, tdx, tdy, tdz, tw0, tw1, tw2, can_trace, env, frame,
                        stack, sp, work):  # fmt: skip
     """Push the transmitted ray with weight ``tw`` along ``t``, or add the environment seen

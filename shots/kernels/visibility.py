@@ -55,11 +55,16 @@ MAX_SKIPS = 64  # cut-out and back-face hits passed through per ray
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def offset_point(surf, side):
-    """The hit point pushed off the surface, toward the ray's side (+1) or through it (−1)."""
-    return offset_origin_one(
+    """The hit point pushed off the surface, toward the ray's side (+1) or through it (−1).
+
+    float64 like every other ray origin (exactly the float32 offset point): one type signature
+    for the ray queries and the floor test whichever ray they trace.
+    """
+    x, y, z = offset_origin_one(
         surf[S_PX], surf[S_PY], surf[S_PZ],
         side * surf[S_GX], side * surf[S_GY], side * surf[S_GZ],
     )  # fmt: skip
+    return np.float64(x), np.float64(y), np.float64(z)
 
 
 
