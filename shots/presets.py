@@ -696,10 +696,41 @@ def _locate(name_or_path: str | Path) -> Path:
                                   f"(built-in: {', '.join(names)})")
 
 
+MAX_NESTING = 64  # arrays and inline tables inside each other; a house style needs 3
+# string delimiters, escapes (consumed whole, so \" ends no string), comments and brackets
+_TOML_TOKENS = re.compile(r'"""|' + r"'''" + r'|\\.|["\'\[\]{}]|#[^\n]*')
+
+
+def _nesting_depth(text: str) -> int:
+    """How deep ``[`` and ``{`` nest in TOML text, outside strings and comments.
+
+    Measured before parsing: the parser recurses once per level, and a RecursionError deep in
+    the stack can strike an unrelated finaliser that the garbage collector happens to run there.
+    """
+    depth = deepest = 0
+    quote = ""
+    for token in _TOML_TOKENS.finditer(text):
+        t = token.group()
+        if quote:
+            quote = "" if t == quote else quote
+        elif t in ('"""', "'''", '"', "'"):
+            quote = t
+        elif t in ("[", "{"):
+            depth += 1
+            deepest = max(deepest, depth)
+        elif t in ("]", "}"):
+            depth = max(depth - 1, 0)
+    return deepest
+
+
 def _read_toml(path: Path) -> dict:
     try:
         with open(path, "rb") as handle:
-            return tomllib.load(handle)
+            text = handle.read().decode("utf-8")
+        if _nesting_depth(text) > MAX_NESTING:
+            raise PresetError(path, None, f"arrays or tables nested too deeply (more than "
+                                          f"{MAX_NESTING} levels)")
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise PresetError(path, None, f"not valid TOML: {exc}") from None
     except UnicodeDecodeError as exc:

@@ -110,7 +110,7 @@ def on_dask_worker(fn, host_threads: dict[str, int], version: str, model: str, *
     """
     from urllib.parse import urlsplit
 
-    from dask.distributed import get_worker
+    from distributed import get_worker  # dask.distributed only re-exports it
 
     import shots
 
@@ -278,6 +278,9 @@ def time_limit(seconds: float, source: str):
     from shots.errors import RenderError
 
     def expire(signum, frame):
+        # Python drops an exception raised inside a garbage-collector callback or a finaliser,
+        # so the alarm rings again shortly until the raise reaches the work itself
+        signal.setitimer(signal.ITIMER_REAL, 0.05)
         raise RenderError(source, None, f"took more than {seconds:g} s (limit seconds)")
 
     previous = signal.signal(signal.SIGALRM, expire)
