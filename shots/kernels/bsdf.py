@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
 from numba import njit
 
 from shots.kernels.brdf import (
@@ -43,11 +42,6 @@ from shots.kernels.surface import (
     S_SPECULAR,
     S_TRANSMISSION,
 )
-
-# Colour channels for callers of fresnel_split. numba types a Python int constant as
-# Literal[int] and compiles a function once for every literal value it is passed; numpy ints are
-# plain int64, so the three channels share one compiled function.
-RED, GREEN, BLUE = np.int64(0), np.int64(1), np.int64(2)
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)

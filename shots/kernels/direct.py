@@ -53,6 +53,9 @@ from shots.kernels.surface import (
 )
 from shots.kernels.visibility import offset_point, shadow_ray
 
+# plain-typed arguments (not Literal[bool] / Literal[int]): ambient_light compiles once for the
+# shadow catcher and the shaded hit
+NO_BOUNCE, EMPTY = np.bool_(False), np.int64(0)
 
 @njit(cache=True, error_model="numpy", _nrt=False)
 def direct_light(surf, vx, vy, vz, lights, area_samples, n_glossy, spp, seed, pixel, sample,
@@ -159,8 +162,9 @@ def shadow_amount(surf, ray, lights, area_samples, spp, seed, pixel, sample, fra
             lit += e * luminance(tr, tg, tb)
     # nearby blockers only (F_CONTACT_REACH, see render.pack_frame)
     _, br, bg, bb, cr, cg, cb = ambient_light(surf, ray, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 0.0, 0.0,
-                                              0.0, False, frame[F_CONTACT_REACH], frame, env, bvh,
-                                              scene, ground, pixel, sample, stack, 0, surf2, work,
+                                              0.0, NO_BOUNCE, frame[F_CONTACT_REACH], frame, env,
+                                              bvh, scene, ground, pixel, sample, stack, EMPTY,
+                                              surf2, work,
                                               tstack)  # fmt: skip
     e_env = math.pi * luminance(br, bg, bb)  # radiance of a white floor → irradiance
     full += e_env

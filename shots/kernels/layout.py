@@ -16,6 +16,8 @@ called for every ray.
 
 from __future__ import annotations
 
+import numpy as np
+
 from shots.scene import N_PARAMS, N_SLOTS
 
 # --- verts ---------------------------------------------------------------------------------------
@@ -59,3 +61,8 @@ W_LOD = 16  # (2) per uv set: log2 of the footprint in uv units (a texture adds 
 W_CONE = 18  # cone width at the ray's origin (world units)
 W_SPREAD = 19  # cone spread angle (radians): the width grows by this per unit of distance
 N_WORK = 20
+
+# --- colour channels, and texture slots passed to functions that are not inlined ---------------
+# numba types a Python int constant as Literal[int] and compiles a callee once for every literal
+# value it is passed; numpy ints are plain int64, so every call shares one compiled function.
+RED, GREEN, BLUE = np.int64(0), np.int64(1), np.int64(2)

@@ -26,14 +26,17 @@ from shots.kernels.brdf import (
     refract,
     schlick_weight,
 )
-from shots.kernels.bsdf import BLUE, GREEN, RED, clearcoat_fresnel, fresnel_split
+from shots.kernels.bsdf import clearcoat_fresnel, fresnel_split
 from shots.kernels.direct import direct_light
 from shots.kernels.layout import (
+    BLUE,
     F_AREA_SAMPLES,
     F_MAX_DEPTH,
     F_SAMPLES,
     F_SEE_THROUGH,
     F_SEED,
+    GREEN,
+    RED,
     W_ACC,
 )
 from shots.kernels.raystack import (

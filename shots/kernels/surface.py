@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 from numba import njit
 
 from shots.kernels.layout import (
@@ -108,6 +109,9 @@ S_SHEEN_R, S_SHEEN_G, S_SHEEN_B = 38, 39, 40  # KHR_materials_sheen colour (line
 S_SHEEN_ROUGHNESS = 41
 N_SURFACE = 42
 
+
+# the normal slots as plain int64 (not Literal[int]): mapped_normal compiles once for both
+NORMAL_SLOT, COAT_NORMAL_SLOT = np.int64(T_NORMAL), np.int64(T_CLEARCOAT_NORMAL)
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
 def sample_slot(materials, texels, tex_info, m, slot, work):
@@ -313,10 +317,11 @@ def mesh_surface(k, b1, b2, dx, dy, dz, cone, verts, faces, materials, texels, t
     # "clearcoatNormalTexture" bends the coat's normal, which starts from the interpolated one)
     if sample_slot(materials, texels, tex_info, m, T_NORMAL, work):
         nx, ny, nz = mapped_normal(k, i0, i1, i2, b0, b1, b2, verts, faces, materials, m,
-                                   T_NORMAL, materials[m, P_NORMAL_SCALE], nx, ny, nz, work)
+                                   NORMAL_SLOT, materials[m, P_NORMAL_SCALE], nx, ny, nz,
+                                   work)  # fmt: skip
     if sample_slot(materials, texels, tex_info, m, T_CLEARCOAT_NORMAL, work):
         cx, cy, cz = mapped_normal(k, i0, i1, i2, b0, b1, b2, verts, faces, materials, m,
-                                   T_CLEARCOAT_NORMAL, materials[m, P_CLEARCOAT_NORMAL_SCALE],
+                                   COAT_NORMAL_SLOT, materials[m, P_CLEARCOAT_NORMAL_SCALE],
                                    surf[S_CX], surf[S_CY], surf[S_CZ], work)
         surf[S_CX] = cx
         surf[S_CY] = cy

@@ -23,7 +23,7 @@ from shots.kernels.ground import (
     GROUND_NONE,
     intersect_ground,
 )
-from shots.kernels.layout import W_CONE, W_SPREAD
+from shots.kernels.layout import BLUE, GREEN, RED, W_CONE, W_SPREAD
 from shots.kernels.offset import offset_origin_one
 from shots.kernels.surface import (
     S_ATT_DISTANCE,
@@ -166,9 +166,9 @@ def light_through(bvh, scene, ox, oy, oz, dx, dy, dz, t_max, surf, work, tstack)
         entering = surf[S_FRONT] != 0.0
         tint = not (volume and not entering)  # a volume is tinted once, where light enters it
         cos_i = abs(dx * surf[S_GX] + dy * surf[S_GY] + dz * surf[S_GZ])
-        tr *= (1.0 - a) + a * through * crossing_transmittance(surf, 0, cos_i, tint)
-        tg *= (1.0 - a) + a * through * crossing_transmittance(surf, 1, cos_i, tint)
-        tb *= (1.0 - a) + a * through * crossing_transmittance(surf, 2, cos_i, tint)
+        tr *= (1.0 - a) + a * through * crossing_transmittance(surf, RED, cos_i, tint)
+        tg *= (1.0 - a) + a * through * crossing_transmittance(surf, GREEN, cos_i, tint)
+        tb *= (1.0 - a) + a * through * crossing_transmittance(surf, BLUE, cos_i, tint)
         if volume and through > 0.0:
             if entering:
                 t_entered = t
