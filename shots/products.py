@@ -52,7 +52,8 @@ class ProductTable:
 
 
 def _model_names(model_file: str) -> list[str]:
-    """``chairs/ekra.glb`` is found as written, as ``ekra.glb`` and as ``ekra``."""
+    """``chairs/oak_dining_chair.glb`` is found as written, as ``oak_dining_chair.glb`` and as
+    ``oak_dining_chair``."""
     path = Path(model_file)
     names = [model_file, path.name]
     if path.suffix.lower() in MODEL_SUFFIXES:

@@ -112,7 +112,7 @@ def test_broken_sidecars_stop_the_batch_naming_the_sidecar(tmp_path, text, field
 
 
 def test_sidecar_path_sits_beside_the_model():
-    assert sidecar_for("/c/chairs/ekra.glb") == Path("/c/chairs/ekra.shots.toml")
+    assert sidecar_for("/c/chairs/oak_dining_chair.glb") == Path("/c/chairs/oak_dining_chair.shots.toml")
     assert sidecar_for("box.gltf") == Path("box.shots.toml")
 
 
