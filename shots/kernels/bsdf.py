@@ -63,11 +63,12 @@ def clearcoat_fresnel(surf, vx, vy, vz):
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
-def eval_bsdf(surf, vx, vy, vz, lx, ly, lz, spec_weight=1.0):
+def eval_bsdf(surf, vx, vy, vz, lx, ly, lz, spec_weight=1.0, coat_weight=1.0):
     """f(v, l)·(N·L) of the surface for unit view v and light l; returns r, g, b.
 
-    ``spec_weight`` scales the base layer's specular lobe alone (its multiple-importance weight
-    when glossy rays share that lobe with the light samples, ``shots.kernels.direct``).
+    ``spec_weight`` and ``coat_weight`` scale the base layer's specular lobe and the clearcoat
+    alone: their multiple-importance weights when reflection rays share those lobes with the light
+    samples (``shots.kernels.direct``).
     """
     nx, ny, nz = surf[S_NX], surf[S_NY], surf[S_NZ]
     n_dot_l = nx * lx + ny * ly + nz * lz
@@ -113,7 +114,7 @@ def eval_bsdf(surf, vx, vy, vz, lx, ly, lz, spec_weight=1.0):
             ca = alpha_of(surf[S_CLEARCOAT_ROUGHNESS])
             layer = specular_lobe(
                 cl, max(cx * vx + cy * vy + cz * vz, 1e-4), cx * hx + cy * hy + cz * hz, ca
-            ) * cl / n_dot_l
+            ) * cl / n_dot_l * coat_weight
         fr = (1.0 - coat) * fr + coat * layer
         fg = (1.0 - coat) * fg + coat * layer
         fb = (1.0 - coat) * fb + coat * layer

@@ -2,10 +2,11 @@
 
 Area lights take stratified samples whose cells are spread over the pixel's camera samples
 (``shots.kernels.sampling.spread_stratum``), so their shadows are soft at any sample count.
-A glossy lobe's highlight of an area light comes from two techniques, combined by multiple
-importance sampling with the power heuristic (Veach 1995, §9.2): the light samples here, and the
-glossy reflection rays (``shots.kernels.reflection``) that meet the light (``lights_seen``). Light
-samples find broad highlights, reflection rays sharp ones, so neither leaves sparkles.
+A glossy lobe's highlight of an area light (the base layer's or the clearcoat's) comes from two
+techniques, combined by multiple importance sampling with the power heuristic (Veach 1995, §9.2):
+the light samples here, and the reflection rays (``shots.kernels.reflection``) that meet the light
+(``lights_seen``). Light samples find broad highlights, reflection rays sharp ones, so neither
+leaves sparkles; a mirror lobe's highlight comes from its ray alone.
 """
 
 from __future__ import annotations
@@ -32,7 +33,7 @@ from shots.kernels.lights import (
     sample_light,
 )
 from shots.kernels.raystack import R_D, R_DEPTH, R_LIGHT_PDF, R_O, R_W
-from shots.kernels.reflection import glossy_pdf
+from shots.kernels.reflection import DELTA_PDF, lobe_weight
 from shots.kernels.sampling import (
     luminance,
     next_pair,
@@ -41,6 +42,10 @@ from shots.kernels.sampling import (
     spread_stratum,
 )
 from shots.kernels.surface import (
+    S_CLEARCOAT_ROUGHNESS,
+    S_CX,
+    S_CY,
+    S_CZ,
     S_GX,
     S_GY,
     S_GZ,
@@ -50,6 +55,7 @@ from shots.kernels.surface import (
     S_PX,
     S_PY,
     S_PZ,
+    S_ROUGHNESS,
 )
 from shots.kernels.visibility import offset_point, shadow_ray
 
@@ -58,13 +64,14 @@ from shots.kernels.visibility import offset_point, shadow_ray
 NO_BOUNCE, EMPTY = np.bool_(False), np.int64(0)
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def direct_light(surf, vx, vy, vz, lights, area_samples, n_glossy, spp, seed, pixel, sample,
-                 frame, bvh, scene, ground, see_through, surf2, work, tstack):  # fmt: skip
+def direct_light(surf, vx, vy, vz, lights, area_samples, n_glossy, n_coat, spp, seed, pixel,
+                 sample, frame, bvh, scene, ground, see_through, surf2, work, tstack):  # fmt: skip
     """Reflected radiance from all look lights with shadow rays; returns r, g, b.
 
     An area light gets ``spread_count(area_samples, spp)`` stratified shadow rays here, their
     cells spread over the pixel's ``spp`` camera samples. When the hit also sends ``n_glossy``
-    glossy rays, the specular lobe's share of each light sample takes its MIS weight.
+    rays for its specular lobe or ``n_coat`` for its clearcoat (``shots.kernels.reflection``),
+    that lobe's share of each light sample takes its MIS weight.
     """
     px, py, pz = surf[S_PX], surf[S_PY], surf[S_PZ]
     gx, gy, gz = surf[S_GX], surf[S_GY], surf[S_GZ]
@@ -82,12 +89,16 @@ def direct_light(surf, vx, vy, vz, lights, area_samples, n_glossy, spp, seed, pi
             wx, wy, wz, dist, er, eg, eb = sample_light(lights, k, px, py, pz, u1, u2)
             if er + eg + eb <= 0.0 or wx * gx + wy * gy + wz * gz <= 0.0:
                 continue
-            spec_weight = 1.0
-            if area and n_glossy > 0:
+            spec_weight, coat_weight = 1.0, 1.0
+            if area:
                 cos_light = -(wx * lights[k, L_DX] + wy * lights[k, L_DY] + wz * lights[k, L_DZ])
-                spec_weight = power_heuristic(n * area_pdf(lights, k, dist, cos_light),
-                                              n_glossy * glossy_pdf(surf, vx, vy, vz, wx, wy, wz))  # fmt: skip
-            fr, fg, fb = eval_bsdf(surf, vx, vy, vz, wx, wy, wz, spec_weight)
+                light_pdf = n * area_pdf(lights, k, dist, cos_light)
+                spec_weight = lobe_weight(n_glossy, surf[S_ROUGHNESS], surf[S_NX], surf[S_NY],
+                                          surf[S_NZ], vx, vy, vz, wx, wy, wz, light_pdf)  # fmt: skip
+                coat_weight = lobe_weight(n_coat, surf[S_CLEARCOAT_ROUGHNESS], surf[S_CX],
+                                          surf[S_CY], surf[S_CZ], vx, vy, vz, wx, wy, wz,
+                                          light_pdf)  # fmt: skip
+            fr, fg, fb = eval_bsdf(surf, vx, vy, vz, wx, wy, wz, spec_weight, coat_weight)
             fr *= er * inv_n
             fg *= eg * inv_n
             fb *= eb * inv_n
@@ -120,7 +131,7 @@ def lights_seen(lights, frame, ray, t_hit, work):
         t, cos_light = hit_area_light(lights, k, ray[R_O], ray[R_O + 1], ray[R_O + 2], ray[R_D],
                                       ray[R_D + 1], ray[R_D + 2])  # fmt: skip
         if t < t_hit:
-            w = power_heuristic(pdf_ray, n * area_pdf(lights, k, t, cos_light))
+            w = 1.0 if pdf_ray == DELTA_PDF else power_heuristic(pdf_ray, n * area_pdf(lights, k, t, cos_light))
             work[W_ACC + 0] += ray[R_W] * lights[k, L_R] * w
             work[W_ACC + 1] += ray[R_W + 1] * lights[k, L_G] * w
             work[W_ACC + 2] += ray[R_W + 2] * lights[k, L_B] * w

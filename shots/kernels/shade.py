@@ -52,7 +52,13 @@ from shots.kernels.raystack import (
     push_ray,
     set_start,
 )
-from shots.kernels.reflection import glossy_rays, spawn_coat, spawn_reflection, wide_lobe
+from shots.kernels.reflection import (
+    coat_rays,
+    glossy_rays,
+    spawn_coat,
+    spawn_reflection,
+    wide_lobe,
+)
 from shots.kernels.sheen import sheen_albedo
 from shots.kernels.surface import (
     S_BASE_B,
@@ -120,8 +126,9 @@ def shade_hit(surf, ray, t_hit, frame, lights, env, bvh, scene, ground, pixel, s
     area_samples = int(frame[F_AREA_SAMPLES]) if depth == 0 else 1
     can_trace = depth + 1 <= int(frame[F_MAX_DEPTH])
     n_glossy = glossy_rays(surf, frame, depth, can_trace)
-    lr, lg, lb = direct_light(surf, vx, vy, vz, lights, area_samples, n_glossy, spp, seed, pixel,
-                              sample, frame, bvh, scene, ground, see_through, surf2, work,
+    n_coat = coat_rays(surf, frame, depth, can_trace)
+    lr, lg, lb = direct_light(surf, vx, vy, vz, lights, area_samples, n_glossy, n_coat, spp, seed,
+                              pixel, sample, frame, bvh, scene, ground, see_through, surf2, work,
                               tstack)  # fmt: skip
     # emission, except where a diffuse bounce found it (``shots.kernels.ambient``: meshes are
     # not sampled as lights, and a small bright emitter found by chance is a firefly)
@@ -181,10 +188,11 @@ def shade_hit(surf, ray, t_hit, frame, lights, env, bvh, scene, ground, pixel, s
     work[W_ACC + 2] += bb + cb
     if not wide:
         sp = spawn_reflection(surf, ray, wr * spec0 * occlusion, wg * spec1 * occlusion,
-                              wb * spec2 * occlusion, can_trace, frame, lights, env, pixel,
-                              sample, stack, sp, work)  # fmt: skip
+                              wb * spec2 * occlusion, n_glossy, frame, env, pixel, sample, stack,
+                              sp, work)  # fmt: skip
     if coat > 0.0:
-        sp = spawn_coat(surf, ray, wr, wg, wb, coat, can_trace, frame, env, stack, sp, work)
+        sp = spawn_coat(surf, ray, wr, wg, wb, coat, n_coat, frame, env, pixel, sample, stack, sp,
+                        work)  # fmt: skip
     if transmission > 0.0 and not tir:
         sp = spawn_transmission(surf, ray, tdx, tdy, tdz, wr * trans0, wg * trans1, wb * trans2,
                                 can_trace, env, frame, stack, sp, work)  # fmt: skip
