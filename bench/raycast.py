@@ -15,7 +15,7 @@ hit and distance agreement with Embree, cold/warm JIT start-up measured in fresh
 the machine's load average, and a table of all ratios. ``--embree-only`` leaves out trimesh, VTK
 and the start-up timing (for quick comparisons while tuning). The last two lines are
 
-    ours (2 threads) / Embree's faster run (1 or 2 threads): camera R1 incoherent R2
+    ours (2 threads) / Embree's faster run (1 or 2 threads), geometric mean of medians: camera R1 incoherent R2
     headline: single-thread camera R1 incoherent R2
 
 with R in the headline = the geometric mean over the meshes of the median over repetitions of
