@@ -56,15 +56,18 @@ LANE_STACK = STACK_SIZE  # stack entries per lane
 # A chunk is coherent when most consecutive rays turn by less than COHERENT_STEP radians (and move
 # their origin by less than COHERENT_STEP x the scene's size). Measured with bench/raycast.py's
 # cameras: one ray after another wins over LANES in flight at 512 px over 40 degrees (0.0014 rad
-# per pixel, 1.06-1.21x) and loses at 256 px (0.0027 rad, 0.92-1.07x) and below: a ray that
-# retraces its predecessor's path finds it in cache and the branch predictor primed.
+# per pixel, 1.06-1.21x) and, on a 2-core Xeon with 2 MB of level-2 cache per core, at 256 px
+# too (0.0027 rad: 1.06-1.08x on trees up to 3 MB, 1.00-1.05x on 5-11 MB; one thread, CPU
+# time): a ray that retraces its predecessor's path finds it in cache and the branch predictor
+# primed.
 # That needs the tree in cache: with 32 MB of L3 cache shared by two cores it lost at 60 MB (a
 # million triangles, 0.71-0.76x, where overlapping the cache misses of LANES rays pays) and won
-# at 12 MB.
-COHERENT_STEP = 2e-3
+# at 12 MB; on the Xeon above (2 MB of level-2 cache per core) 256 px camera rays lost 8% at 5.9 MB
+# (bench/raycast.py --quick, grid 100k) and won at 1.3 and 2.7 MB.
+COHERENT_STEP = 4e-3
 COHERENT_SHARE = 0.75  # share of consecutive pairs that must be that close (scanlines wrap)
 COHERENT_SAMPLE = 8  # pairs judged: every 8th (the check costs 1/8 of judging them all)
-IN_TURN_MAX_BYTES = 16 << 20  # largest tree (nodes and vertices) traced in turn
+IN_TURN_MAX_BYTES = 4 << 20  # largest tree (nodes and vertices) traced in turn
 # Any rays, coherent or not, go one after another through a tree this small: with nothing to
 # wait for, keeping LANES rays in flight is pure overhead. Random rays, one thread: 1.14-1.18x
 # at 0.28 and 0.52 MB, 0.78x at 1.6 MB and 0.56x at 4.5 MB (the L2 cache is 1 MB per core
