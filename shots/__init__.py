@@ -14,7 +14,7 @@ The stages, in the order data flows through them:
 
 import logging
 
-__version__ = "0.2.0"
+__version__ = "0.3.0"
 
 # A library does not print log records unless its user configures logging (Python logging
 # HOWTO, "Configuring Logging for a Library"): no last-resort output to stderr.
