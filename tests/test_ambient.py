@@ -17,7 +17,8 @@ from shots.kernels import layout
 from shots.kernels.ambient import box_distance, hemisphere_clear, power_heuristic
 from shots.kernels.envlight import env_pdf, sample_env
 from shots.kernels.ground import GROUND_CATCHER, GROUND_NONE, GROUND_PLANE, N_GROUND
-from shots.look import Environment
+from shots.look import Environment, Ground
+from shots.render import SHADOW_NOISE_FLOOR
 
 WHITE_ENV = Environment(zenith=(1.0, 1.0, 1.0), horizon=(1.0, 1.0, 1.0), nadir=(1.0, 1.0, 1.0))
 LAMBERT = dict(P_SPECULAR=0.0, P_DOUBLE_SIDED=1.0)  # no specular lobe, seen from both sides
@@ -132,13 +133,14 @@ def test_box_distance_bounds_the_contact_shadow_rays():
     assert box_distance(frame, 4.0, -4.0, 5.0) == pytest.approx(math.sqrt(9 + 16 + 16))
 
 
-def _floor_and_wall(h=1.0):
-    """A white Lambertian floor (y = 0, x > 0) beside a long, thin black wall of height h."""
+def _floor_and_wall(h=1.0, parts=False):
+    """A white Lambertian floor (y = 0, x > 0) beside a long, thin black wall of height h
+    (merged, or the two apart with ``parts``)."""
     floor = mesh_scene([[0, 0, -20], [0, 0, 20], [10, 0, 20], [10, 0, -20]],
                        [[0, 1, 2], [0, 2, 3]], normals=np.tile([0.0, 1.0, 0.0], (4, 1)),
                        rows=[diffuse(**LAMBERT)])  # fmt: skip
     wall = box((0.002, h, 40.0), (-0.001, h / 2, 0.0), rows=[diffuse((0, 0, 0), **LAMBERT)])
-    return merge(floor, wall)
+    return (floor, wall) if parts else merge(floor, wall)
 
 
 def test_floor_beside_a_wall_receives_the_configuration_factor():
@@ -161,6 +163,33 @@ def test_floor_beside_a_wall_receives_the_configuration_factor():
         assert strip.sum() >= 32
         # the wall is black: the strip's radiance is the visible sky alone (any bounce is black)
         assert image[strip, 0].mean() == pytest.approx(exact, rel=0.02)
+
+
+def test_shadow_catcher_alpha_is_the_sky_the_wall_hides():
+    # The same configuration factor (Howell's catalogue, strip element to a perpendicular
+    # infinite plane) read from the invisible floor: with no lights, the contact shadow a
+    # shadow catcher writes to alpha is the share of the sky's irradiance the wall hides,
+    # F = ½(1 − d/√(d² + h²)): 0.38 at d = h/4, 0.28 at h/2, 0.15 at h, less the catcher's
+    # noise floor (alpha (F − floor)/(1 − floor), shots.render.lift_shadow_noise_floor); the
+    # colour stays black (premultiplied).
+    _, wall = _floor_and_wall(parts=True)
+    camera = ortho_camera(32, half_height=1.0, eye=(0.6, 5.0, 0.0), target=(0.6, 0.0, 0.0),
+                          up=(0.0, 0.0, -1.0), width=48)  # fmt: skip
+    catcher = Ground(kind="shadow_catcher", height=0.0)
+    image = render(wall, camera, look(env=WHITE_ENV, ground=catcher, samples=64))
+    jj, ii = np.mgrid[0 : camera.height, 0 : camera.width]
+    origins, _ = camera.rays_at(ii.ravel() + 0.5, jj.ravel() + 0.5)
+    x = origins[:, 0].reshape(camera.height, camera.width)
+    pixel = 1.2 / 32
+    for d in (0.25, 0.5, 1.0):
+        hidden = 0.5 * (1.0 - d / math.hypot(d, 1.0))
+        strip = np.abs(x - d) < 0.75 * pixel
+        assert strip.sum() >= 32
+        expected = (hidden - SHADOW_NOISE_FLOOR) / (1.0 - SHADOW_NOISE_FLOOR)
+        assert image[strip, 3].mean() == pytest.approx(expected, abs=0.006)  # 1.5 alpha codes
+        assert np.all(image[strip, :3] == 0.0)
+    far = x > 1.1  # still well inside the contact reach: the alpha keeps falling with d
+    assert image[far, 3].mean() < image[np.abs(x - 1.0) < 0.75 * pixel, 3].mean()
 
 
 def _bowl(radius=1.0, rings=24, segments=64):

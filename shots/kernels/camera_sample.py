@@ -103,7 +103,7 @@ def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env, b
                                    int(frame[F_SAMPLES]), int(frame[F_SEED]), pixel, sample,
                                    frame, env, bvh, scene, ground, frame[F_SEE_THROUGH] != 0.0,
                                    stack, surf2, work, tstack)  # fmt: skip
-            a = min(shadow * ground[G_STRENGTH], 1.0)
+            a = shadow * ground[G_STRENGTH]  # unclamped per sample, so the mean is unbiased
             work[W_ACC + 3] += ray[R_COVER] * a
             for c in range(3):
                 ray[R_W + c] *= 1.0 - a
