@@ -254,6 +254,7 @@ def pack_frame(
     row[layout.F_GLOSSY_SAMPLES] = max(int(look.glossy_samples), 1)
     row[layout.F_MAX_DEPTH] = max(int(look.max_depth), 0)
     row[layout.F_SEED] = int(look.seed) & 0xFFFFFFFF
+    row[layout.F_PIXEL_SEED] = row[layout.F_SEED]
     row[layout.F_SEE_THROUGH] = 1.0 if see_through else 0.0
     row[layout.F_BACKGROUND] = BACKGROUNDS[look.background.kind]
     colours = background_colours(look)

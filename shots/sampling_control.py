@@ -7,16 +7,20 @@ Adaptive (``look.samples`` = 0)
     still short of its target takes one more stratified set, sized (a square count, so the set is
     stratified exactly) to bring it to the samples its error estimate asks for. Each set has the
     set number folded into the seed (the contract in ``shots.kernels.image``); one large set
-    beats many small ones, as stratification works within a set.
+    beats many small ones, as stratification works within a set. The sample's place in the
+    pixel is the exception: it continues one scrambled Sobol' sequence over all the pixel's
+    sets, so coverage and texture detail keep converging as sets are added.
     The error estimate comes from the pixel's own sets: the per-sample variance from the spread
     of its set means (the between-groups mean square of a one-way analysis of variance: each set
-    mean is an independent, unbiased estimate of the pixel, so the estimate is valid, if
-    conservative, for stratified sets), divided by the sample count for the standard error of
-    the mean; carried to 8-bit display codes through the display transform at the pixel's
-    current mean (a central difference of ``shots.colour.to_display`` over ±1 standard error:
-    the delta method with the curve's own slope). Alpha counts as a fourth channel (255 codes =
-    fully opaque), so edges against a transparent background converge too. The error falls as
-    1/√n, so a pixel with error e after n samples needs n·(e / target)².
+    mean is an unbiased estimate of the pixel, so the estimate is valid, if conservative, for
+    stratified sets; sets that fill each other's gaps in the pixel vary more among themselves
+    than their combined mean does, which only adds to that margin), divided by the sample
+    count for the standard error of the mean; carried to 8-bit display codes through the
+    display transform at the pixel's current mean (a central difference of
+    ``shots.colour.to_display`` over ±1 standard error: the delta method with the curve's own
+    slope). Alpha counts as a fourth channel (255 codes = fully opaque), so edges against a
+    transparent background converge too. The error falls as 1/√n, so a pixel with error e
+    after n samples needs n·(e / target)².
     The decision is smoothed: a pixel goes on while its own error or the mean error variance of
     its 3 × 3 neighbourhood is above ``noise_target`` (two sets give one degree of freedom, and
     a pixel whose sets agree by luck must not stop alone; Dammertz et al. 2010, "A Hierarchical

@@ -214,3 +214,44 @@ def test_adaptive_coverage_converges_on_an_edge():
     edge = half[3:5, 4]
     assert np.allclose(edge[:, 3], 0.5, atol=0.03)
     np.testing.assert_allclose(edge[:, 0], edge[:, 3], rtol=1e-6)
+
+
+@pytest.mark.parametrize("seed", [0, 12345, 0xDEADBEEF])
+def test_camera_sample_sequence_is_a_scrambled_0_2_sequence(seed):
+    # Sobol' 1967's first two dimensions form a (0, 2)-sequence in base 2: every aligned block
+    # of 2^m points (the first 2^m, the next 2^m, ...) is a (0, m, 2)-net, one point in each
+    # elementary interval [a/2^i, (a+1)/2^i) × [b/2^(m−i), (b+1)/2^(m−i)) (Niederreiter 1992,
+    # "Random Number Generation and Quasi-Monte Carlo Methods", Def. 4.1 and §4.3); Owen
+    # scrambling keeps the property (Owen 1995, "Randomly permuted (t,m,s)-nets and
+    # (t,s)-sequences"). Independent jittered sets of 4 fail it from m = 3 on.
+    from shots.kernels.sampling import sobol_point
+
+    points = np.array([sobol_point(i, seed) for i in range(1024)])
+    assert np.all((points > 0.0) & (points < 1.0))
+    for m in range(1, 11):
+        for start in range(0, 1024, 1 << m):
+            block = points[start : start + (1 << m)]
+            for i in range(m + 1):
+                cells = np.floor(block[:, 0] * (1 << i)) * (1 << (m - i)) + np.floor(
+                    block[:, 1] * (1 << (m - i)))
+                assert len(np.unique(cells)) == 1 << m, (m, start, i)
+    other = np.array([sobol_point(i, seed + 1) for i in range(64)])
+    assert not np.allclose(other, points[:64])  # another pixel's seed: another scramble
+
+
+def test_later_sets_fill_the_gaps_the_first_left():
+    # The pixel's place of each camera sample follows its sample count over all sets, so two
+    # sets of 4 are the first 8 points of one sequence, not two independent sets: the
+    # 8 points then lie in 8 different cells of a 2 × 4 and a 4 × 2 grid (see above).
+    from shots.kernels.camera_sample import sample_offset
+    from shots.kernels.sampling import tent_warp
+
+    seed, pixel = 7, 1234
+    offsets = np.array([sample_offset(4, k, seed, pixel) for k in range(8)])
+    # back through the tent warp (monotonic) to the unit square
+    grid = np.linspace(0.0, 1.0, 200001)
+    warped = np.array([tent_warp(u) for u in grid])
+    unit = np.interp(offsets - 0.5, warped, grid)
+    for nx, ny in ((2, 4), (4, 2), (8, 1), (1, 8)):
+        cells = np.floor(unit[:, 0] * nx) * ny + np.floor(unit[:, 1] * ny)
+        assert len(np.unique(cells)) == 8

@@ -61,8 +61,8 @@ from shots.kernels.raystack import (
     set_ray,
 )
 from shots.kernels.sampling import (
-    random_bits,
-    stratum,
+    pcg_hash,
+    sobol_point,
     tent_warp,
 )
 from shots.kernels.shade import shade_hit
@@ -186,13 +186,12 @@ def camera_ray(frame, px, py):
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
-def sample_offset(spp, s, seed, pixel):
-    """Sub-pixel position of camera sample ``s``: the centre for one sample, else a jittered
-    grid warped to the tent filter of radius 1 px (filter importance sampling)."""
+def sample_offset(spp, index, seed, pixel):
+    """Sub-pixel position of the pixel's camera sample ``index`` (counted over all its sets):
+    the centre for a one-sample render, else point ``index`` of the pixel's own scrambled
+    Sobol' sequence (``sobol_point``) warped to the tent filter of radius 1 px (filter
+    importance sampling)."""
     if spp == 1:
         return 0.5, 0.5
-    h = random_bits(seed, pixel, s, 0)
-    u1 = ((h & 0xFFFF) + 0.5) * (1.0 / 65536.0)
-    u2 = ((h >> 16) + 0.5) * (1.0 / 65536.0)
-    a, b = stratum(s, spp, u1, u2)
+    a, b = sobol_point(index, pcg_hash((seed ^ pcg_hash(pixel & 0xFFFFFFFF)) & 0xFFFFFFFF))
     return 0.5 + tent_warp(a), 0.5 + tent_warp(b)

@@ -13,7 +13,10 @@ Sampling contract (relied on by the shading kernels)
     ``next_pair`` (``shots.kernels.sampling``). Adaptive sampling (``shots.sampling_control``)
     calls this kernel once per pass, each pass one such set with its own ``frame[F_SEED]`` (the
     frame's seed with the pass number folded in), so every pass is stratified on its own and
-    no two passes share random numbers.
+    no two passes share random numbers. The one exception is the sample's place in the pixel:
+    it is point ``counts[j, i] + s`` of the pixel's own scrambled Sobol' sequence (seeded by
+    ``frame[F_PIXEL_SEED]``, the same in every pass), so later passes fill the gaps earlier
+    ones left at edges and in textures.
 """
 
 from __future__ import annotations
@@ -29,8 +32,8 @@ from shots.kernels.layout import (
     F_BG_BOTTOM,
     F_BG_TOP,
     F_HEIGHT,
+    F_PIXEL_SEED,
     F_SAMPLES,
-    F_SEED,
     F_WIDTH,
     N_WORK,
     W_ACC,
@@ -95,7 +98,7 @@ def render_tiles(item, out, frame, lights, env, ground, bvh, scene, active, coun
     width = int(frame[F_WIDTH])
     height = int(frame[F_HEIGHT])
     spp = max(int(frame[F_SAMPLES]), 1)
-    seed = int(frame[F_SEED])
+    pixel_seed = int(frame[F_PIXEL_SEED])
     tiles_x = (width + TILE - 1) // TILE
     tiles = tiles_x * ((height + TILE - 1) // TILE)
     for tile in range(item, tiles, WORK_ITEMS):
@@ -108,8 +111,9 @@ def render_tiles(item, out, frame, lights, env, ground, bvh, scene, active, coun
                 pixel = j * width + i
                 for c in range(4):
                     work[W_ACC + c] = 0.0
+                before = counts[j, i]  # the pixel's samples in earlier sets
                 for s in range(spp):
-                    fx, fy = sample_offset(spp, s, seed, pixel)
+                    fx, fy = sample_offset(spp, before + s, pixel_seed, pixel)
                     ox, oy, oz, dx, dy, dz = camera_ray(frame, i + fx, j + fy)
                     f = min(max((j + fy) / height, 0.0), 1.0)
                     bg_r = (1.0 - f) * frame[F_BG_TOP] + f * frame[F_BG_BOTTOM]

@@ -46,7 +46,8 @@ F_CONTACT_REACH = 60  # length of the floor's contact-shadow rays (m)
 F_BOX = 61  # (6) the model's bounding box: min xyz, max xyz
 F_DIFFUSE_BOUNCES = 67  # diffuse bounces a path may take
 F_INDIRECT_CLAMP = 68  # largest luminance one indirect ray may add to a sample
-N_FRAME = 69
+F_PIXEL_SEED = 69  # the frame's own seed, the same in every set: scrambles each pixel's sequence
+N_FRAME = 70
 BG_TRANSPARENT, BG_SOLID, BG_GRADIENT, BG_ENVIRONMENT = 0, 1, 2, 3
 
 # --- work ------------------------------------------------------------------------------------

@@ -38,6 +38,57 @@ def random01(seed, pixel, sample, dim):
     return random_bits(seed, pixel, sample, dim) * (1.0 / 4294967296.0)
 
 
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def reverse_bits(x):
+    """The 32 bits of x in reverse order."""
+    x = ((x >> 1) & 0x55555555) | ((x & 0x55555555) << 1)
+    x = ((x >> 2) & 0x33333333) | ((x & 0x33333333) << 2)
+    x = ((x >> 4) & 0x0F0F0F0F) | ((x & 0x0F0F0F0F) << 4)
+    x = ((x >> 8) & 0x00FF00FF) | ((x & 0x00FF00FF) << 8)
+    return ((x >> 16) | (x << 16)) & MASK32
+
+
+@njit(cache=True, inline="always", error_model="numpy", _nrt=False)
+def owen_scramble(x, seed):
+    """Nested uniform (Owen) scrambling of the 32-bit fraction x by a hash (Burley 2020,
+    "Practical Hash-based Owen Scrambling", JCGT 9(4), after Laine & Karras 2011): each bit
+    is flipped by a function of the bits above it, which keeps every net property."""
+    x = reverse_bits(x)
+    x = (x + seed) & MASK32
+    x ^= (x * 0x6C50B47C) & MASK32
+    x ^= (x * 0xB82F1E52) & MASK32
+    x ^= (x * 0xC7AFE638) & MASK32
+    x ^= (x * 0x8D22F6E6) & MASK32
+    return reverse_bits(x)
+
+
+@njit(cache=True, error_model="numpy", _nrt=False)
+def sobol_point(index, seed):
+    """Point ``index`` of a 2-D Sobol' sequence, Owen-scrambled by ``seed``, in [0, 1)².
+
+    The first two Sobol' dimensions (Sobol' 1967: the van der Corput radical inverse, and the
+    generator matrix of the polynomial x + 1) form a (0, 2)-sequence: every prefix of 2^m points
+    has one point in each of the 2^m elementary intervals of area 2^-m (Niederreiter 1992,
+    "Random Number Generation and Quasi-Monte Carlo Methods", §4.1). So samples added to a
+    pixel later fill the gaps the earlier ones left, where independent sets would not.
+    """
+    x = 0
+    y = 0
+    v = 0x80000000
+    i = index & MASK32
+    bit = 0
+    while i:
+        if i & 1:
+            x ^= 0x80000000 >> bit
+            y ^= v
+        v ^= v >> 1
+        i >>= 1
+        bit += 1
+    x = owen_scramble(x, pcg_hash(seed & MASK32))
+    y = owen_scramble(y, pcg_hash((seed ^ 0x5BD1E995) & MASK32))
+    return (x + 0.5) * (1.0 / 4294967296.0), (y + 0.5) * (1.0 / 4294967296.0)
+
+
 @njit(cache=True, error_model="numpy", _nrt=False)
 def stratum(index, count, u1, u2):
     """Point ``index`` of a jittered grid of ``count`` cells over [0, 1)², jitter (u1, u2).
