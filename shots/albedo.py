@@ -12,31 +12,95 @@ fabric under the same lights read alike, a doubled light reads twice as high.
 Only matte surfaces count: metals, clear-coated lacquer, glass (transmission) and glowing
 surfaces show the room's lights mirrored, through or emitted rather than their albedo lit, so a
 high-gloss stool would read several times brighter than an oak chair under the same lights.
+
+``first_surfaces`` gives the same pass as guide buffers for the denoiser (``shots.denoise``):
+albedo, shading normal, hit distance and which pixels must stay as rendered.
 """
 
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 import numpy as np
 
 from shots.accel import intersect_closest
 from shots.camera import Camera
 from shots.colour import LUMA_709
-from shots.kernels.albedo import A_COVERAGE, A_GLOSS, A_METALLIC, N_ALBEDO, base_colours
+from shots.kernels.albedo import (
+    A_COVERAGE,
+    A_GLOSS,
+    A_GLOW,
+    A_METALLIC,
+    A_NX,
+    A_NZ,
+    A_ROUGHNESS,
+    A_TRANSMISSION,
+    N_ALBEDO,
+    base_colours,
+)
 
 METAL = 0.5  # metallic above this: the colour is a reflectance of the room, not an albedo
 WHITE = 0.99  # a base colour with every channel at least this is the untextured default
 MIN_PIXELS = 16  # fewer matte pixels than this give no reading
+# Roughness below which a surface shows the room mirrored rather than its albedo lit: the
+# renderer itself traces dielectric lobes smoother than 0.3 as reflections (``shots.render``).
+SMOOTH = 0.3
+
+
+@dataclass(frozen=True)
+class FirstSurfaces:
+    """What each pixel centre's camera ray hits first (all zero where it misses the model).
+
+    albedo : (h, w, 3) linear base colour. normal : (h, w, 3) unit shading normal facing the
+    camera. depth : (h, w) hit distance (inf on a miss). coverage : (h, w) opacity.
+    sharp : (h, w) bool, surfaces whose light is not their albedo lit: metals, smooth or
+    clear-coated lacquer, glass, glowing and see-through surfaces (and misses).
+    """
+
+    albedo: np.ndarray
+    normal: np.ndarray
+    depth: np.ndarray
+    coverage: np.ndarray
+    sharp: np.ndarray
 
 
 def albedo_image(prepared, camera: Camera) -> np.ndarray:
     """(h, w, N_ALBEDO) float64: the first surface at each pixel centre, columns ``A_*`` of
-    ``shots.kernels.albedo`` (base colour, coverage, metallic, gloss); all zero where the ray
-    misses the model (coverage 0)."""
+    ``shots.kernels.albedo`` (base colour, coverage, metallic, gloss, normal, ...); all zero
+    where the ray misses the model (coverage 0)."""
+    return _first_hits(prepared, camera)[0]
+
+
+def _first_hits(prepared, camera: Camera) -> tuple[np.ndarray, np.ndarray]:
+    """(albedo_image's rows, (h, w) hit distance, inf on a miss)."""
     origins, directions = camera.pixel_rays()
-    _, tri, b1, b2 = intersect_closest(prepared.bvh, origins, directions)
+    t, tri, b1, b2 = intersect_closest(prepared.bvh, origins, directions)
     out = np.zeros((len(tri), N_ALBEDO))
     base_colours(tri, b1, b2, directions, *prepared.packed, out)
-    return out.reshape(camera.height, camera.width, N_ALBEDO)
+    depth = t.astype(np.float64) * np.linalg.norm(directions.astype(np.float64), axis=1)
+    shape = (camera.height, camera.width)
+    return out.reshape(shape + (N_ALBEDO,)), depth.reshape(shape)
+
+
+def first_surfaces(prepared, camera: Camera) -> FirstSurfaces:
+    """The denoiser's guide buffers: one ray through each pixel centre (``FirstSurfaces``)."""
+    rows, depth = _first_hits(prepared, camera)
+    coverage = rows[..., A_COVERAGE]
+    sharp = (
+        (coverage < 1.0)
+        | (rows[..., A_METALLIC] > METAL)
+        | (rows[..., A_ROUGHNESS] < SMOOTH)  # A_ROUGHNESS counts a clearcoat's
+        | (rows[..., A_TRANSMISSION] > 0.0)
+        | (rows[..., A_GLOW] > 0.0)
+        | ~np.isfinite(depth)
+    )
+    return FirstSurfaces(
+        albedo=rows[..., :3].copy(),
+        normal=rows[..., A_NX : A_NZ + 1].copy(),
+        depth=depth,
+        coverage=coverage.copy(),
+        sharp=sharp,
+    )
 
 
 def inner_pixels(covered: np.ndarray) -> np.ndarray:

@@ -1,7 +1,8 @@
 """Base colour of the first surface each camera ray sees: what the materials should give.
 
 The check compares a render's luminance with this albedo (``shots.albedo``), so a light and a
-dark fabric under the same light agree, while a wrong light still stands out.
+dark fabric under the same light agree, while a wrong light still stands out. The same pass gives
+the denoiser (``shots.denoise``) its guides: the shading normal and how glossy the surface is.
 """
 
 from __future__ import annotations
@@ -16,11 +17,16 @@ from shots.kernels.surface import (
     S_BASE_G,
     S_BASE_R,
     S_CLEARCOAT,
+    S_CLEARCOAT_ROUGHNESS,
     S_EM_B,
     S_EM_G,
     S_EM_R,
     S_METALLIC,
+    S_NX,
+    S_NY,
+    S_NZ,
     S_OPACITY,
+    S_ROUGHNESS,
     S_TRANSMISSION,
     mesh_surface,
 )
@@ -30,7 +36,11 @@ A_R, A_G, A_B = 0, 1, 2  # linear base colour: factor × texture × vertex colou
 A_COVERAGE = 3  # opacity (alpha mode applied)
 A_METALLIC = 4
 A_GLOSS = 5  # the largest of clearcoat, transmission and emission: light that is no albedo's
-N_ALBEDO = 6
+A_NX, A_NY, A_NZ = 6, 7, 8  # unit shading normal, on the side the ray came from
+A_ROUGHNESS = 9  # the smoothest visible layer's roughness (clearcoat's when it has one)
+A_TRANSMISSION = 10
+A_GLOW = 11  # emission, summed over r, g, b
+N_ALBEDO = 12
 
 
 @njit(cache=True, parallel=True, error_model="numpy")
@@ -53,3 +63,12 @@ def base_colours(tri, b1, b2, directions, verts, faces, materials, texels, tex_i
         out[i, A_METALLIC] = surf[S_METALLIC]
         glow = surf[S_EM_R] + surf[S_EM_G] + surf[S_EM_B]
         out[i, A_GLOSS] = max(surf[S_CLEARCOAT], surf[S_TRANSMISSION], glow)
+        out[i, A_NX] = surf[S_NX]
+        out[i, A_NY] = surf[S_NY]
+        out[i, A_NZ] = surf[S_NZ]
+        rough = surf[S_ROUGHNESS]
+        if surf[S_CLEARCOAT] > 0.0:
+            rough = min(rough, surf[S_CLEARCOAT_ROUGHNESS])
+        out[i, A_ROUGHNESS] = rough
+        out[i, A_TRANSMISSION] = surf[S_TRANSMISSION]
+        out[i, A_GLOW] = glow
