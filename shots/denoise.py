@@ -4,8 +4,8 @@
 
 The filter is the edge-avoiding à-trous wavelet transform of Dammertz et al. 2010 ("Edge-Avoiding
 À-Trous Wavelet Transform for fast Global Illumination Filtering", HPG 2010): five passes of the
-5 × 5 B3-spline kernel (1/16, 1/4, 3/8, 1/4, 1/16) with holes of 1, 2, 4, 8 and 16 pixels between
-its taps, each tap weighted down where it crosses an edge. The edge-stopping weights are those of
+5 × 5 cubic B-spline kernel (1/16, 1/4, 3/8, 1/4, 1/16) with holes of 1, 2, 4, 8 and 16 pixels
+between its taps, each tap weighted down where it crosses an edge. The edge-stopping weights are those of
 Schied et al. 2017 ("Spatiotemporal Variance-Guided Filtering", HPG 2017, section 4.4):
 
 - normal: max(0, n·n')^σn with σn = 128;
@@ -35,7 +35,7 @@ from shots.albedo import FirstSurfaces, inner_pixels
 from shots.colour import LUMA_709
 
 PASSES = 5  # hole spacing 1, 2, 4, 8, 16 pixels
-B3 = np.array([1 / 16, 1 / 4, 3 / 8, 1 / 4, 1 / 16])  # Dammertz et al. 2010, section 3
+SPLINE = np.array([1 / 16, 1 / 4, 3 / 8, 1 / 4, 1 / 16])  # Dammertz et al. 2010, section 3
 SIGMA_NORMAL = 128  # Schied et al. 2017, section 4.4
 SQUARINGS = 7  # 2^7 = SIGMA_NORMAL
 SIGMA_DEPTH = 1.0
@@ -116,7 +116,7 @@ def atrous_pass(illumination, var, normal, depth, slope, mask, step: int):
             phi_depth = slope * float(SIGMA_DEPTH * np.hypot(dx, dy)) + TINY
             exponent = np.abs(depth - p_depth[window]) / phi_depth
             exponent += np.abs(luma - p_luma[window]) / phi_luma
-            weight = float(B3[j] * B3[i]) * w_normal * np.exp(-exponent) * p_mask[window]
+            weight = float(SPLINE[j] * SPLINE[i]) * w_normal * np.exp(-exponent) * p_mask[window]
             total += weight[..., None] * p_ill[window]
             weight_sum += weight
             var_sum += weight * weight * p_var[window]
@@ -168,7 +168,7 @@ def blur3(values: np.ndarray, mask: np.ndarray) -> np.ndarray:
 
 def neighbourhood_variance(luma: np.ndarray, normal: np.ndarray, mask: np.ndarray) -> np.ndarray:
     """Variance of each pixel's luminance from its 5 × 5 neighbours on surfaces facing the same
-    way (B3-weighted), for a render without a per-pixel error estimate."""
+    way (weighted by the cubic B-spline), for a render without a per-pixel error estimate."""
     h, w = luma.shape
     padded = np.pad(luma, 2)
     p_normal = np.pad(normal, ((2, 2), (2, 2), (0, 0)))
@@ -179,7 +179,11 @@ def neighbourhood_variance(luma: np.ndarray, normal: np.ndarray, mask: np.ndarra
     for j in range(5):
         for i in range(5):
             window = (slice(j, j + h), slice(i, i + w))
-            weight = float(B3[j] * B3[i]) * normal_weight(normal, p_normal[window]) * p_mask[window]
+            weight = (
+                float(SPLINE[j] * SPLINE[i])
+                * normal_weight(normal, p_normal[window])
+                * p_mask[window]
+            )
             value = padded[window]
             first += weight * value
             second += weight * value * value

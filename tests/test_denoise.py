@@ -15,7 +15,7 @@ from typer.testing import CliRunner
 from shots.albedo import FirstSurfaces, first_surfaces
 from shots.cli import app
 from shots.demo import demo_models
-from shots.denoise import B3, denoise, filterable
+from shots.denoise import SPLINE, denoise, filterable
 from shots.look import Environment, Light, Look
 from shots.presets import load_preset
 from shots.render import prepare_scene, render_frame
@@ -58,12 +58,12 @@ def test_a_constant_image_stays_constant():
 
 
 def test_noise_on_a_flat_plane_drops_by_more_than_one_kernel_pass():
-    # One pass of the 5 × 5 B3-spline kernel (1/16, 1/4, 3/8, 1/4, 1/16) without edge stopping
-    # divides independent noise by 1 / sqrt(sum of squared weights) = 3.657 (the variance of a
+    # One pass of the 5 × 5 cubic B-spline kernel (1/16, 1/4, 3/8, 1/4, 1/16) without edge
+    # stopping divides independent noise by 1 / sqrt(sum of squared weights) = 3.657 (the variance of a
     # weighted mean); five passes with the luminance weight of Schied et al. 2017 must do better
     # than one plain pass.
     kernel = np.array([1 / 16, 1 / 4, 3 / 8, 1 / 4, 1 / 16])  # Dammertz et al. 2010, section 3
-    assert np.array_equal(B3, kernel)
+    assert np.array_equal(SPLINE, kernel)
     one_pass = 1.0 / np.sqrt(np.sum(np.outer(kernel, kernel) ** 2))
     assert abs(one_pass - 3.657) < 1e-3
     sigma, truth = 0.02, 0.25  # analytic value: illumination 0.5 × albedo 0.5
