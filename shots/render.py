@@ -14,7 +14,7 @@ Image formation
     pixel's estimated error is under ``look.noise_target`` display codes, between
     ``look.min_samples`` and ``look.max_samples`` (``shots.sampling_control``). ``look.denoise``
     then filters the matte product pixels' illumination (``shots.denoise``), guided by a
-    one-ray pass of first surfaces; those pixels may stop at ``DENOISED_TARGET`` × the target. Every random
+    one-ray pass of first surfaces; those pixels stop at ``RELAXED_TARGET`` × the target. Every random
     number is a hash of (seed, pixel, sample, dimension), the pass number folded into the seed:
     reruns are bit-identical and do not depend on the number of threads.
 Sample counts per hit
@@ -43,12 +43,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from shots import denoise as denoiser
 from shots import sampling_control
 from shots.accel import Bvh, build_bvh
 from shots.albedo import first_surfaces
 from shots.camera import ORTHOGRAPHIC, Camera
 from shots.colour import srgb_to_linear
-from shots.denoise import denoise, filterable
 from shots.environment import environment_map, sampling_table
 from shots.errors import RenderError
 from shots.kernels import ground as gk
@@ -91,9 +91,6 @@ CONTACT_REACH = 0.25  # contact-shadow rays reach this fraction of the model's b
 # catalog look comes near it. Light seen after one reflection (a sun in chrome) is not clamped.
 # Its bias is measured in tests/test_ambient.py.
 INDIRECT_CLAMP = 4.0
-# With ``look.denoise`` the adaptive sampler lets the pixels the filter will smooth stop at this
-# many times the noise target (measured in bench/quality.py).
-DENOISED_TARGET = 2.0
 
 
 @dataclass(frozen=True)
@@ -322,7 +319,8 @@ def render_frame_counted(
     else:
         target = look.noise_target
         if surfaces is not None:
-            target = np.where(filterable(surfaces), DENOISED_TARGET * target, target)
+            relaxed = denoiser.RELAXED_TARGET * target
+            target = np.where(denoiser.filterable(surfaces), relaxed, target)
             variance = np.zeros(shape + (4,), np.float64)
         out, counts = sampling_control.render_adaptive(
             run_pass, shape, seed, target, look.min_samples, look.max_samples,
@@ -332,7 +330,7 @@ def render_frame_counted(
     if look.ground.kind == "shadow_catcher":
         lift_shadow_noise_floor(out)
     if surfaces is not None:
-        out = denoise(out, surfaces, variance)
+        out = denoiser.denoise(out, surfaces, variance)
     return out, counts
 
 

@@ -9,16 +9,26 @@ surfaces, a checkerboard texture.
 from __future__ import annotations
 
 import numpy as np
-from scenes import diffuse, look, ortho_camera, quad, sphere
+from scenes import (
+    diffuse,
+    look,
+    material,
+    ortho_camera,
+    quad,
+    single_texture,
+    sphere,
+    textured_table,
+)
 from typer.testing import CliRunner
 
-from shots.albedo import FirstSurfaces, first_surfaces
+from shots.albedo import FirstSurfaces, albedo_image, first_surfaces
 from shots.cli import app
 from shots.demo import demo_models
 from shots.denoise import SPLINE, denoise, filterable
 from shots.look import Environment, Light, Look
 from shots.presets import load_preset
 from shots.render import prepare_scene, render_frame
+from shots.scene import T_BASE_COLOR
 
 SIZE = 40
 LIGHT = Light("area", intensity=3.0, position=(1, 2, 2), direction=(-1, -2, -2),
@@ -184,6 +194,24 @@ def test_guide_buffers_of_a_plane_facing_the_camera():
     assert np.allclose(surfaces.normal[hit], (0.0, 0.0, 1.0), atol=1e-6)
     assert np.allclose(surfaces.albedo[hit], (0.2, 0.4, 0.6), atol=1e-6)
     assert not surfaces.sharp[hit].any() and surfaces.sharp[~hit].all()
+
+
+def test_guide_albedo_is_averaged_over_the_pixel_filter():
+    # Stripes one pixel wide whose edges pass through the pixel centres: the renderer's pixel
+    # filter (a tent, symmetric about the centre) sees half of each stripe, so the albedo the
+    # render shows is 0.5 in every pixel; one ray through the centre reads 0 or 1.
+    columns = np.arange(32) % 2
+    stripes = np.zeros((4, 32, 4))
+    stripes[..., :3] = columns[None, :, None]
+    stripes[..., 3] = 1.0
+    scene = quad(size=4.0, center=(0.0625, 0.0, 0.0), textures=single_texture(stripes),
+                 table=textured_table(material(P_METALLIC=0.0, P_ROUGHNESS=1.0),
+                                      {T_BASE_COLOR: 0}))  # fmt: skip
+    prepared, camera = prepare_scene(scene), ortho_camera(size=16, half_height=1.0)
+    albedo = first_surfaces(prepared, camera).albedo[2:-2, 2:-2]
+    assert np.allclose(albedo, 0.5, atol=0.01)
+    centre = albedo_image(prepared, camera)[2:-2, 2:-2, :3]
+    assert np.all(np.isclose(centre, 0.0) | np.isclose(centre, 1.0))
 
 
 def test_metal_and_smooth_surfaces_are_kept_sharp():

@@ -44,18 +44,18 @@ N_ALBEDO = 12
 
 
 @njit(cache=True, parallel=True, error_model="numpy")
-def base_colours(tri, b1, b2, directions, verts, faces, materials, texels, tex_info, out):
+def base_colours(tri, b1, b2, directions, cones, verts, faces, materials, texels, tex_info, out):
     """Fill ``out`` (r, N_ALBEDO) with the ``A_*`` columns at each hit; rows of missed rays
-    (tri < 0) are left as they are."""
+    (tri < 0) are left as they are. ``cones`` (r,): each ray's cone width at its hit (world
+    units), the footprint its textures are filtered over; 0 reads the finest level."""
     for i in prange(len(tri)):
         k = tri[i]
         if k < 0:
             continue
         surf = np.empty(N_SURFACE)
         work = np.zeros(N_WORK)
-        # cone 0: the finest texture level (the albedo is read once, not filtered over a footprint)
-        mesh_surface(k, b1[i], b2[i], directions[i, 0], directions[i, 1], directions[i, 2], 0.0,
-                     verts, faces, materials, texels, tex_info, surf, work)
+        mesh_surface(k, b1[i], b2[i], directions[i, 0], directions[i, 1], directions[i, 2],
+                     cones[i], verts, faces, materials, texels, tex_info, surf, work)  # fmt: skip
         out[i, A_R] = surf[S_BASE_R]
         out[i, A_G] = surf[S_BASE_G]
         out[i, A_B] = surf[S_BASE_B]
