@@ -116,9 +116,8 @@ class ImageSettings(Table):
     seed: int = Field(0, ge=0, le=2**32 - 1)
     denoise: bool = Field(False, description=(
         "Smooth the remaining noise on the product's matte surfaces with an edge-aware filter "
-        "guided by their albedo and normals (shots.denoise); adaptive sampling then lets those "
-        "pixels stop at twice the noise target. Metal, glass, gloss, the outline and the "
-        "background keep their rendered pixels."))
+        "guided by their albedo, normals and depth (shots.denoise). Metal, glass, gloss, the "
+        "outline and the background keep their rendered pixels."))
 
     @model_validator(mode="after")
     def _sample_range(self) -> ImageSettings:
