@@ -106,8 +106,8 @@ def render(
         "--samples", metavar="N",
         help="Exactly N camera samples per pixel (adaptive sampling off).")] = None,
     denoise: Annotated[bool, typer.Option(
-        "--denoise", help="Smooth the product's matte surfaces with the edge-aware filter "
-                          "([image] denoise = true).")] = False,
+        "--denoise", metavar=FLAG, help="Smooth the product's matte surfaces with the edge-aware "
+                                        "filter (the preset key image.denoise).")] = False,
     preset: PresetOpt = "still",
     scene: SceneOpt = None,
     variant: Annotated[str | None, typer.Option(
