@@ -13,8 +13,9 @@ Image formation
     gives every pixel one set of exactly N samples; 0 renders passes of a few samples until each
     pixel's estimated error is under ``look.noise_target`` display codes, between
     ``look.min_samples`` and ``look.max_samples`` (``shots.sampling_control``). ``look.denoise``
-    then filters the matte product pixels' illumination (``shots.denoise``), guided by a
-    one-ray pass of first surfaces; those pixels stop at ``RELAXED_TARGET`` × the target. Every random
+    then filters the matte product pixels' illumination (``shots.denoise``), guided by their
+    first surfaces (``shots.albedo.first_surfaces``); those pixels stop at ``RELAXED_TARGET`` × the
+    target. Every random
     number is a hash of (seed, pixel, sample, dimension), the pass number folded into the seed:
     reruns are bit-identical and do not depend on the number of threads.
 Sample counts per hit

@@ -26,6 +26,7 @@ from shots.cli import app
 from shots.demo import demo_models
 from shots.denoise import SPLINE, denoise, filterable
 from shots.look import Environment, Light, Look
+from shots.planner import plan_frames
 from shots.presets import load_preset
 from shots.render import prepare_scene, render_frame
 from shots.scene import T_BASE_COLOR
@@ -234,6 +235,12 @@ def test_denoise_is_off_by_default_and_acts_only_on_matte_inner_pixels():
     inside = filterable(first_surfaces(prepared, camera))
     assert np.array_equal(on[~inside], default[~inside])
     assert not np.array_equal(on[inside], default[inside])
+
+
+def test_the_preset_key_reaches_every_frames_look():
+    preset = load_preset("still").with_image(denoise=True).with_image_size(8, 8)
+    frames = plan_frames(preset, quad(size=2.0))
+    assert frames and all(frame.look.denoise for frame in frames)
 
 
 def test_render_command_takes_denoise(tmp_path):
