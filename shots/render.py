@@ -15,9 +15,8 @@ Image formation
     ``look.min_samples`` and ``look.max_samples`` (``shots.sampling_control``). ``look.denoise``
     then filters the matte product pixels' illumination (``shots.denoise``), guided by their
     first surfaces (``shots.albedo.first_surfaces``); those pixels stop at ``RELAXED_TARGET`` × the
-    target. Every random
-    number is a hash of (seed, pixel, sample, dimension), the pass number folded into the seed:
-    reruns are bit-identical and do not depend on the number of threads.
+    target. Every random number is a hash of (seed, pixel, sample, dimension), the pass number
+    folded into the seed: reruns are bit-identical and do not depend on the number of threads.
 Sample counts per hit
     ``area_light_samples`` (shadow rays per area light) and ``glossy_samples`` (reflection rays of
     a glossy surface) are counts for one camera sample.
