@@ -53,8 +53,9 @@ GRID = 2  # the denoiser's albedo: GRID × GRID rays per pixel
 class FirstSurfaces:
     """What each pixel centre's camera ray hits first (all zero where it misses the model).
 
-    albedo : (h, w, 3) linear base colour over the pixel (``footprint_albedo``). normal : (h, w, 3) unit shading normal facing the
-    camera. depth : (h, w) hit distance (inf on a miss). coverage : (h, w) opacity.
+    albedo : (h, w, 3) linear base colour over the pixel (``footprint_albedo``).
+    normal : (h, w, 3) unit shading normal facing the camera.
+    depth : (h, w) hit distance (inf on a miss). coverage : (h, w) opacity.
     sharp : (h, w) bool, surfaces whose light is not their albedo lit: metals, smooth or
     clear-coated lacquer, glass, glowing and see-through surfaces (and misses).
     """

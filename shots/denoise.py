@@ -5,8 +5,8 @@
 The filter is the edge-avoiding à-trous wavelet transform of Dammertz et al. 2010 ("Edge-Avoiding
 À-Trous Wavelet Transform for fast Global Illumination Filtering", HPG 2010): five passes of the
 5 × 5 cubic B-spline kernel (1/16, 1/4, 3/8, 1/4, 1/16) with holes of 1, 2, 4, 8 and 16 pixels
-between its taps, each tap weighted down where it crosses an edge. The edge-stopping weights are those of
-Schied et al. 2017 ("Spatiotemporal Variance-Guided Filtering", HPG 2017, section 4.4):
+between its taps, each tap weighted down where it crosses an edge. The edge-stopping functions
+are those of Schied et al. 2017 ("Spatiotemporal Variance-Guided Filtering", HPG 2017):
 
 - normal: max(0, n·n')^σn with σn = 128;
 - depth: exp(−|z − z'| / (σz · |∇z| · step · |offset| + ε)) with σz = 1, |∇z| the larger of the
@@ -15,16 +15,17 @@ Schied et al. 2017 ("Spatiotemporal Variance-Guided Filtering", HPG 2017, sectio
   luminance after a 3 × 3 Gaussian g; each pass carries the variance through its own weights
   (Σ w² var / (Σ w)²), as Schied et al. do.
 
-What is filtered is the illumination: the colour divided by the first surface's albedo, filtered,
-then multiplied back (Schied et al. 2017, section 4.1), so texture edges stay as sharp as the
-albedo pass sees them. Only the product's matte inner pixels take part: metals, smooth or
-clear-coated lacquer, glass, glowing and partly covered surfaces, the background, the floor and
-the anti-aliased outline (a pixel with a neighbour outside that set) keep their rendered values
-bit for bit, and alpha is never changed.
+What is filtered is the illumination: the colour divided by the first surface's albedo (averaged
+over the pixel filter, ``shots.albedo.footprint_albedo``), filtered, then multiplied back (the
+demodulation of Schied et al. 2017), so texture edges stay as sharp as the render shows them.
+Only the product's matte inner pixels take part: metals, smooth or clear-coated lacquer, glass,
+glowing and partly covered surfaces, the background, the floor and the anti-aliased outline (a
+pixel with a neighbour outside that set) keep their rendered values bit for bit, and alpha is
+never changed.
 
 The variance is the adaptive sampler's own estimate of each pixel's error
 (``shots.sampling_control``); a fixed-count render has none, so it is estimated from the
-neighbourhood as Schied et al. do for a pixel without history (section 4.3).
+neighbourhood, as Schied et al. do for a pixel without temporal history.
 """
 
 from __future__ import annotations
@@ -35,10 +36,12 @@ from shots.albedo import FirstSurfaces, inner_pixels
 from shots.colour import LUMA_709
 
 PASSES = 5  # hole spacing 1, 2, 4, 8, 16 pixels
-SPLINE = np.array([1 / 16, 1 / 4, 3 / 8, 1 / 4, 1 / 16])  # Dammertz et al. 2010, section 3
-SIGMA_NORMAL = 128  # Schied et al. 2017, section 4.4
+SPLINE = np.array([1 / 16, 1 / 4, 3 / 8, 1 / 4, 1 / 16])  # Dammertz et al. 2010: the à-trous kernel
+SIGMA_NORMAL = 128  # Schied et al. 2017
 SQUARINGS = 7  # 2^7 = SIGMA_NORMAL
 SIGMA_DEPTH = 1.0
+# Schied et al. use 4; 2 measured better on the demo bookcase's filtered pixels (RMSE in codes at
+# 16 spp 3.60 against 4.08, adaptive 2.09 against 2.13) and the same on the chair.
 SIGMA_LUMA = 2.0
 ALBEDO_FLOOR = 0.02  # darker albedo channels demodulate by this (no division by zero)
 TINY = 1e-10
@@ -46,7 +49,7 @@ TINY = 1e-10
 # with bench/quality.py --quick (demo thumbnails at 256 px; RMSE in codes, default → denoised):
 # at 2 the table 2.25 → 2.59 and the sofa 2.29 → 2.77 lose more to the fewer samples than the
 # filter wins back (total CPU -4 %); at 1.5 still 2.44 and 2.51; at 1 every model gains or keeps
-# its error (worst 3.22 → 2.65) for +9 % CPU. So the target is kept as it is.
+# its error (worst 3.22 → 2.65) for 7-9 % more CPU. So the target is kept as it is.
 RELAXED_TARGET = 1.0
 GAUSS3 = np.array([1 / 4, 1 / 2, 1 / 4])  # the 3 × 3 Gaussian that steadies the variance
 
