@@ -6,7 +6,9 @@ For each demo model (read from the demo catalog's ``catalog.json``) it renders t
 thumbnail (built-in ``thumbnail``) and the first hero view (built-in ``demo-hero``) at ``--size``
 pixels wide, three ways: a reference at 1024 samples per pixel (cached under ``--cache``, keyed by
 the model's bytes, the frame, the size and a hash of the renderer's code), the preset's default
-sampling, and a fixed 16 samples per pixel. ``--quick``: 256 px, thumbnails only.
+sampling, and a fixed 16 samples per pixel; then both again with ``[image] denoise`` on
+(``shots.denoise``; ``RELAXED_TARGET`` there sets the noise target of the filtered pixels).
+``--quick``: 256 px, thumbnails only.
 
 Error is measured in 8-bit display codes (0–255) of the image as shown over black (display colour
 × alpha, after exposure, tone map and sRGB), over the product's pixels: those a one-sample render
@@ -15,7 +17,8 @@ every pixel the reference or the test covers (the product and its shadow on a ca
 is the process's (all threads) inside ``render_frame``, after a warm-up render compiled the
 kernels. The last line is
 ``headline: worst RMSE R codes, worst p99 P codes, time T× fixed-16`` (worst over the frames of
-the default sampling; T is its total CPU time ÷ fixed 16's).
+the default sampling; T is its total CPU time ÷ fixed 16's); the line before it gives the same
+for the denoised default, and the filter's own cost per frame (guide pass and filter, CPU).
 """
 
 from __future__ import annotations
@@ -23,6 +26,7 @@ from __future__ import annotations
 import argparse
 import hashlib
 import json
+import os
 import sys
 import time
 from dataclasses import replace
@@ -34,8 +38,10 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 import shots  # noqa: E402
+from shots.albedo import first_surfaces  # noqa: E402
 from shots.colour import to_display  # noqa: E402
 from shots.demo import demo_folder  # noqa: E402
+from shots.denoise import denoise  # noqa: E402
 from shots.gltf import load_scene  # noqa: E402
 from shots.look import Background, Ground  # noqa: E402
 from shots.planner import plan_frames  # noqa: E402
@@ -48,6 +54,7 @@ REFERENCE_SEED_OFFSET = 1_000_003
 SHOTS = (("thumbnail", "thumbnail"), ("hero", "demo-hero"))
 CODE_FILES = ("shots/kernels/*.py", "shots/render.py", "shots/scene.py", "shots/gltf/*.py",
               "shots/environment.py")  # fmt: skip
+NOT_TRACED = ("shots/kernels/albedo.py",)  # the guide buffers' kernel: no reference pixel
 
 
 def code_version() -> str:
@@ -55,6 +62,8 @@ def code_version() -> str:
     digest = hashlib.sha256(shots.__version__.encode())
     for pattern in CODE_FILES:
         for path in sorted(ROOT.glob(pattern)):
+            if path.relative_to(ROOT).as_posix() in NOT_TRACED:
+                continue
             digest.update(path.read_bytes())
     return digest.hexdigest()[:16]
 
@@ -88,7 +97,8 @@ def reference(prepared, frame, model: Path, shot: str, cache: Path) -> np.ndarra
     camera = {k: v for k, v in frame.to_json().items() if k != "samples"}
     # another seed than the tests', so no test shares random numbers with its reference
     look = replace(frame.look, samples=REFERENCE_SAMPLES, noise_target=0, min_samples=0,
-                   max_samples=0, seed=frame.look.seed + REFERENCE_SEED_OFFSET)  # fmt: skip
+                   max_samples=0, denoise=False,
+                   seed=frame.look.seed + REFERENCE_SEED_OFFSET)  # fmt: skip
     key.update(json.dumps([shot, camera, repr(look), code_version()], sort_keys=True).encode())
     path = cache / f"{model.stem}-{shot}-{frame.camera.width}-{key.hexdigest()[:20]}.npy"
     if path.exists():
@@ -130,6 +140,34 @@ def errors(test: np.ndarray, ref: np.ndarray, mask: np.ndarray, look) -> dict:
     }
 
 
+def modes(look) -> tuple:
+    """(name, look) of each way a frame is rendered: default and fixed 16, plain and denoised."""
+    fixed = replace(look, samples=FIXED_SAMPLES)
+    return (("default", look), (f"fixed {FIXED_SAMPLES}", fixed),
+            ("default denoised", replace(look, denoise=True)),
+            (f"fixed {FIXED_SAMPLES} denoised", replace(fixed, denoise=True)))  # fmt: skip
+
+
+def filter_cost(prepared, frame, rgba) -> tuple[float, float]:
+    """CPU seconds of the guide pass and of the filter (variance estimated from the
+    neighbourhood, the fixed-count path) on one frame."""
+    start = time.process_time()
+    surfaces = first_surfaces(prepared, frame.camera)
+    middle = time.process_time()
+    denoise(rgba, surfaces)
+    return middle - start, time.process_time() - middle
+
+
+def summary(rows: list[dict], mode: str) -> tuple[float, float]:
+    """(worst RMSE, worst p99) over the rows of one mode."""
+    chosen = [r for r in rows if r["mode"] == mode]
+    return max(r["rmse"] for r in chosen), max(r["p99"] for r in chosen)
+
+
+def cpu_of(rows: list[dict], mode: str) -> float:
+    return sum(r["cpu"] for r in rows if r["mode"] == mode)
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--size", type=int, default=512, help="image width in pixels")
@@ -145,25 +183,36 @@ def main() -> None:
     print(f"quality: {len(models)} models × {[s for s, _ in shot_list]} at {size} px wide; "
           f"reference {REFERENCE_SAMPLES} spp (cache {args.cache})", flush=True)  # fmt: skip
     warm, warm_frame = first_frame(models[0], "thumbnail", 16)
-    render_frame_counted(warm, warm_frame.camera, warm_frame.look)  # compile before timing
-    rows = []
+    for _, look in modes(warm_frame.look):  # compile before timing (the guide pass too)
+        render_frame_counted(warm, warm_frame.camera, look)
+    rows, costs = [], []
     for model in models:
         for shot, preset_name in shot_list:
             prepared, frame = first_frame(model, preset_name, size)
             ref = reference(prepared, frame, model, shot, args.cache)
             mask = product_mask(prepared, frame)
-            for mode, look in (("default", frame.look),
-                               (f"fixed {FIXED_SAMPLES}", replace(frame.look, samples=FIXED_SAMPLES))):  # fmt: skip
+            for mode, look in modes(frame.look):
                 rgba, counts, cpu = timed(prepared, frame, look)
+                if mode == f"fixed {FIXED_SAMPLES}":
+                    costs.append(filter_cost(prepared, frame, rgba))
                 row = {"model": model.stem, "shot": shot, "mode": mode, "cpu": cpu,
                        "spp": float(counts[mask].mean()), **errors(rgba, ref, mask, look)}  # fmt: skip
                 rows.append(row)
-                print(f"{row['model']:<26} {shot:<9} {mode:<8} cpu {cpu:6.2f} s  "
+                print(f"{row['model']:<26} {shot:<9} {mode:<19} cpu {cpu:6.2f} s  "
                       f"spp {row['spp']:5.1f}  RMSE {row['rmse']:5.2f}  p99 {row['p99']:6.1f}  "
                       f"alpha RMSE {row['alpha']:5.2f}", flush=True)  # fmt: skip
     adaptive = [r for r in rows if r["mode"] == "default"]
-    fixed = [r for r in rows if r["mode"] != "default"]
+    fixed = [r for r in rows if r["mode"] == f"fixed {FIXED_SAMPLES}"]
     ratio = sum(r["cpu"] for r in adaptive) / sum(r["cpu"] for r in fixed)
+    guides, filtering = np.median(costs, axis=0)
+    print(f"filter cost per {size} px frame (median, CPU): guide pass {guides * 1000:.0f} ms, "
+          f"filter {filtering * 1000:.0f} ms")  # fmt: skip
+    for mode in ("default denoised", f"fixed {FIXED_SAMPLES} denoised"):
+        worst, p99 = summary(rows, mode)
+        print(f"{mode}: worst RMSE {worst:.2f} codes, worst p99 {p99:.1f} codes, time "
+              f"{cpu_of(rows, mode) / cpu_of(rows, 'default'):.2f}× default, mean spp "
+              f"{np.mean([r['spp'] for r in rows if r['mode'] == mode]):.1f}")  # fmt: skip
+    print(f"load average {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     print(f"product pixels' mean spp: default {np.mean([r['spp'] for r in adaptive]):.1f}, "
           f"fixed {FIXED_SAMPLES}; worst fixed-16 RMSE {max(r['rmse'] for r in fixed):.2f}, "
           f"p99 {max(r['p99'] for r in fixed):.1f}")  # fmt: skip

@@ -105,6 +105,9 @@ def render(
     samples: Annotated[int | None, typer.Option(
         "--samples", metavar="N",
         help="Exactly N camera samples per pixel (adaptive sampling off).")] = None,
+    denoise: Annotated[bool, typer.Option(
+        "--denoise", metavar=FLAG, help="Smooth the product's matte surfaces with the edge-aware "
+                                        "filter (the preset key image.denoise).")] = False,
     preset: PresetOpt = "still",
     scene: SceneOpt = None,
     variant: Annotated[str | None, typer.Option(
@@ -126,6 +129,7 @@ def render(
                 preset_with_limits(load_preset(preset), limit),
                 size=parse_size(size),
                 samples=parse_samples(samples),
+                denoise=True if denoise else None,
                 scene_choice=parse_scene(scene),
                 variant=variant,
                 on_frame=lambda r: out.print(f"wrote {literal(r.path)}", highlight=False),

@@ -100,3 +100,4 @@ class Look:
     exposure: float = 0.0  # stops
     tone_map: str = "neutral"
     seed: int = 0
+    denoise: bool = False  # edge-aware filter of the illumination after sampling (shots.denoise)

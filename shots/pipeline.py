@@ -49,6 +49,7 @@ def render_model(
     *,
     size: tuple[int, int] | None = None,
     samples: int | None = None,
+    denoise: bool | None = None,
     scene_choice: int | str | None = None,
     variant: str | None = None,
     on_frame: Callable[[RenderedFrame], None] | None = None,
@@ -62,6 +63,7 @@ def render_model(
     preset : a Preset, a built-in preset name or a path to a TOML preset.
     size : (width, height) overriding the preset's image size.
     samples : exactly this many camera samples per pixel (adaptive sampling off).
+    denoise : overrides the preset's ``[image] denoise`` (``shots.denoise``).
     scene_choice : glTF scene index or name (default: the file's default scene, else the first).
     variant : a KHR_materials_variants name to render instead of the default materials.
     on_frame : called after each frame is written (progress reporting).
@@ -73,6 +75,8 @@ def render_model(
         preset = preset.with_image_size(*size)
     if samples is not None:
         preset = preset.with_samples(samples)
+    if denoise is not None:
+        preset = preset.with_image(denoise=denoise)
     loaded = load_scene(model, scene=scene_choice, limits=preset.limits)
     hints = model_hints(loaded) if preset.model.units == "m" and preset.model.up_axis == "y" else []
     scene = apply_model_fixes(loaded, preset)

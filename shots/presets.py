@@ -5,7 +5,7 @@ A preset has these tables, every key optional (the defaults below apply)::
     description = "..."
     extends = "thumbnail"            # or a path relative to this file, or a list merged in order
     [image]       width height samples noise_target min_samples max_samples light_samples
-                  gloss_samples bounces seed
+                  gloss_samples bounces seed denoise
     [look]        exposure (stops) tone_map
     [model]       units ("m", "cm", "mm", "auto") up_axis ("y", "z")
     [background]  kind ("transparent", "solid", "gradient", "environment") color color_bottom
@@ -114,6 +114,10 @@ class ImageSettings(Table):
     gloss_samples: int = Field(4, ge=1, le=1024)  # reflection rays for rough surfaces
     bounces: int = Field(4, ge=0, le=64)  # reflection/refraction recursion limit
     seed: int = Field(0, ge=0, le=2**32 - 1)
+    denoise: bool = Field(False, description=(
+        "Smooth the remaining noise on the product's matte surfaces with an edge-aware filter "
+        "guided by their albedo, normals and depth (shots.denoise). Metal, glass, gloss, the "
+        "outline and the background keep their rendered pixels."))
 
     @model_validator(mode="after")
     def _sample_range(self) -> ImageSettings:
@@ -1090,6 +1094,7 @@ def resolve_look(preset: Preset, camera: Camera, centre, radius: float, seed: in
         exposure=preset.look.exposure,
         tone_map=preset.look.tone_map,
         seed=seed,
+        denoise=preset.image.denoise,
     )
 
 

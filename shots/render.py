@@ -12,9 +12,11 @@ Image formation
     equally weighted; a single sample goes through the pixel centre. ``look.samples`` = N > 0
     gives every pixel one set of exactly N samples; 0 renders passes of a few samples until each
     pixel's estimated error is under ``look.noise_target`` display codes, between
-    ``look.min_samples`` and ``look.max_samples`` (``shots.sampling_control``). Every random
-    number is a hash of (seed, pixel, sample, dimension), the pass number folded into the seed:
-    reruns are bit-identical and do not depend on the number of threads.
+    ``look.min_samples`` and ``look.max_samples`` (``shots.sampling_control``). ``look.denoise``
+    then filters the matte product pixels' illumination (``shots.denoise``), guided by their
+    first surfaces (``shots.albedo.first_surfaces``); those pixels stop at ``RELAXED_TARGET`` × the
+    target. Every random number is a hash of (seed, pixel, sample, dimension), the pass number
+    folded into the seed: reruns are bit-identical and do not depend on the number of threads.
 Sample counts per hit
     ``area_light_samples`` (shadow rays per area light) and ``glossy_samples`` (reflection rays of
     a glossy surface) are counts for one camera sample.
@@ -41,8 +43,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from shots import denoise as denoiser
 from shots import sampling_control
 from shots.accel import Bvh, build_bvh
+from shots.albedo import first_surfaces
 from shots.camera import ORTHOGRAPHIC, Camera
 from shots.colour import srgb_to_linear
 from shots.environment import environment_map, sampling_table
@@ -309,16 +313,25 @@ def render_frame_counted(
 
     shape = (camera.height, camera.width)
     seed = int(look.seed) & 0xFFFFFFFF
+    surfaces = first_surfaces(prepared, camera) if look.denoise else None
+    variance = None
     if look.samples > 0:
         out, counts = sampling_control.render_fixed(run_pass, shape, look.samples, seed)
     else:
+        target = look.noise_target
+        if surfaces is not None:
+            relaxed = denoiser.RELAXED_TARGET * target
+            target = np.where(denoiser.filterable(surfaces), relaxed, target)
+            variance = np.zeros(shape + (4,), np.float64)
         out, counts = sampling_control.render_adaptive(
-            run_pass, shape, seed, look.noise_target, look.min_samples, look.max_samples,
+            run_pass, shape, seed, target, look.min_samples, look.max_samples,
             look.exposure, look.tone_map,
-            SHADOW_NOISE_FLOOR if look.ground.kind == "shadow_catcher" else 0.0,
+            SHADOW_NOISE_FLOOR if look.ground.kind == "shadow_catcher" else 0.0, variance,
         )  # fmt: skip
     if look.ground.kind == "shadow_catcher":
         lift_shadow_noise_floor(out)
+    if surfaces is not None:
+        out = denoiser.denoise(out, surfaces, variance)
     return out, counts
 
 

@@ -86,17 +86,22 @@ def render_adaptive(
     run_pass: PassRunner,
     shape: tuple[int, int],
     seed: int,
-    noise_target: float,
+    noise_target: float | np.ndarray,
     min_samples: int,
     max_samples: int,
     exposure: float = 0.0,
     tone_map: str = "neutral",
     shadow_floor: float = 0.0,
+    variance_out: np.ndarray | None = None,
 ):
     """Stratified sets until each pixel's estimated error is under ``noise_target`` codes.
 
+    ``noise_target``: one value, or an (h, w) array of one per pixel (a denoised render lets
+    the pixels its filter will smooth stop earlier).
     ``shadow_floor``: the shadow-catcher alpha that ``shots.render.lift_shadow_noise_floor`` will
     remove from pure-shadow pixels (0 without a catcher); error below it is not shown.
+    ``variance_out``: an (h, w, 4) float64 array to receive the estimated variance of each
+    pixel's mean (its standard error squared, per channel), for the denoiser.
 
     Returns (rgba (h, w, 4) float32 premultiplied linear, counts (h, w) int32 samples per pixel).
     """
@@ -123,6 +128,10 @@ def render_adaptive(
         plan = np.where(sums.sets < 2, PILOT_SAMPLES, next_set_size(needed - counts,
                                                                     max_samples - counts))
         active &= (plan > 0).astype(np.uint8)
+    if variance_out is not None:
+        n = np.maximum(counts, 1).astype(np.float64)[..., None]
+        sets = np.maximum(sums.sets, 2)[..., None]
+        variance_out[...] = standard_error(sums.total, sums.squares, n, sets) ** 2
     return (sums.total / np.maximum(counts, 1)[..., None]).astype(np.float32), counts
 
 

@@ -161,6 +161,8 @@ BROKEN = {
     "fill above one": (f"[[shots]]\n{SHOT}fill = 1.5\n",
                        "shots[0].fill: must be at most 1.0, got 1.5"),
     "negative samples": ("[image]\nsamples = -1\n", "image.samples: must be at least 0, got -1"),
+    "string for denoise": ('[image]\ndenoise = "yes"\n',
+                           "image.denoise: expected true or false, got the string 'yes'"),
     "noise target of zero": ("[image]\nnoise_target = 0.0\n",
                              "image.noise_target: must be at least 0.1, got 0.0"),
     "too few minimum samples": ("[image]\nmin_samples = 4\n",
