@@ -216,17 +216,26 @@ def test_adaptive_coverage_converges_on_an_edge():
     np.testing.assert_allclose(edge[:, 0], edge[:, 3], rtol=1e-6)
 
 
+def _sequence(kind, seed, n):
+    from shots.kernels.sampling import sequence_point, sobol_point
+
+    if kind == "camera":
+        return np.array([sobol_point(i, seed) for i in range(n)])
+    return np.array([sequence_point(1, i, seed) for i in range(n)])  # a hit's second ray
+
+
+@pytest.mark.parametrize("kind", ["camera", "per-hit rays"])
 @pytest.mark.parametrize("seed", [0, 12345, 0xDEADBEEF])
-def test_camera_sample_sequence_is_a_scrambled_0_2_sequence(seed):
+def test_sample_sequences_are_scrambled_0_2_sequences(kind, seed):
     # Sobol' 1967's first two dimensions form a (0, 2)-sequence in base 2: every aligned block
     # of 2^m points (the first 2^m, the next 2^m, ...) is a (0, m, 2)-net, one point in each
     # elementary interval [a/2^i, (a+1)/2^i) × [b/2^(m−i), (b+1)/2^(m−i)) (Niederreiter 1992,
     # "Random Number Generation and Quasi-Monte Carlo Methods", Def. 4.1 and §4.3); Owen
     # scrambling keeps the property (Owen 1995, "Randomly permuted (t,m,s)-nets and
-    # (t,s)-sequences"). Independent jittered sets of 4 fail it from m = 3 on.
-    from shots.kernels.sampling import sobol_point
-
-    points = np.array([sobol_point(i, seed) for i in range(1024)])
+    # (t,s)-sequences"). Independent jittered sets of 4 fail it from m = 3 on. The per-hit
+    # rays' sequences shuffle the index by nested scrambling too (Burley 2020, §4), which maps
+    # every aligned block of indices onto an aligned block, so the property holds for them.
+    points = _sequence(kind, seed, 1024)
     assert np.all((points > 0.0) & (points < 1.0))
     for m in range(1, 11):
         for start in range(0, 1024, 1 << m):
@@ -235,7 +244,7 @@ def test_camera_sample_sequence_is_a_scrambled_0_2_sequence(seed):
                 cells = np.floor(block[:, 0] * (1 << i)) * (1 << (m - i)) + np.floor(
                     block[:, 1] * (1 << (m - i)))
                 assert len(np.unique(cells)) == 1 << m, (m, start, i)
-    other = np.array([sobol_point(i, seed + 1) for i in range(64)])
+    other = _sequence(kind, seed + 1, 64)
     assert not np.allclose(other, points[:64])  # another pixel's seed: another scramble
 
 
@@ -255,3 +264,20 @@ def test_later_sets_fill_the_gaps_the_first_left():
     for nx, ny in ((2, 4), (4, 2), (8, 1), (1, 8)):
         cells = np.floor(unit[:, 0] * nx) * ny + np.floor(unit[:, 1] * ny)
         assert len(np.unique(cells)) == 8
+
+
+def test_per_hit_sequences_do_not_move_in_step_with_the_camera_sample():
+    # Two nested-scrambled copies of one sequence read at the same index are tied: scrambling
+    # maps each half [0, ½) wholesale onto a half, so the light's u would sit in one half for
+    # every sample in the left half of the pixel. The shuffled index (Burley 2020, §4) unties
+    # them: the left half's samples reach both halves of the light about equally.
+    from shots.kernels.sampling import sequence_point, sobol_point
+
+    for seed in (3, 99, 2024):
+        camera = np.array([sobol_point(i, seed) for i in range(256)])
+        light = np.array([sequence_point(0, i, seed ^ 0xABCDEF) for i in range(256)])
+        for axis in (0, 1):
+            left = camera[:, axis] < 0.5
+            for light_axis in (0, 1):
+                share = np.mean(light[left, light_axis] < 0.5)
+                assert 0.3 < share < 0.7, (seed, axis, light_axis, share)

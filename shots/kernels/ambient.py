@@ -41,7 +41,7 @@ from shots.kernels.layout import (
     F_BOX,
     F_DIFFUSE_BOUNCES,
     F_INDIRECT_CLAMP,
-    F_SAMPLES,
+    F_PIXEL_SEED,
     F_SEE_THROUGH,
     F_SEED,
     W_ACC,
@@ -62,7 +62,7 @@ from shots.kernels.sampling import (
     next_pair,
     orthonormal_basis,
     pixel_key,
-    spread_stratum,
+    sequence_point,
 )
 from shots.kernels.surface import (
     S_GX,
@@ -195,6 +195,7 @@ def ambient_light(surf, ray, tr, tg, tb, d0, d1, d2, s0, s1, s2, can_bounce, rea
             or box_distance(frame, px, py, pz) > 1.001 * reach):  # fmt: skip
         return sp, br, bg, bb, 0.0, 0.0, 0.0
     seed = int(frame[F_SEED])
+    pixel_seed = int(frame[F_PIXEL_SEED])
     # Russian roulette on the whole correction (Arvo & Kirk 1990): a dim lobe (glass's 4 %
     # reflection, a deep bounce) is corrected only sometimes, with its weight raised to match
     q = min(1.0, max(tr * (d0 + s0), tg * (d1 + s1), tb * (d2 + s2)) / ROULETTE_WEIGHT)
@@ -205,14 +206,12 @@ def ambient_light(surf, ray, tr, tg, tb, d0, d1, d2, s0, s1, s2, can_bounce, rea
         tr, tg, tb = tr / q, tg / q, tb / q
     p_diffuse = wd / (wd + ws)
     alpha = alpha_of(surf[S_ROUGHNESS])
-    spp = int(frame[F_SAMPLES])
     depth = int(ray[R_DEPTH])
     cr, cg, cb = 0.0, 0.0, 0.0
 
     # technique 1: a direction from the environment's table
-    r1, r2 = next_pair(seed, pixel, sample, work)
-    key = pixel_key(seed, pixel, PURPOSE_ENV + 2 * depth)
-    a1, a2 = spread_stratum(0, 1, sample, spp, key, r1, r2)
+    key = pixel_key(pixel_seed, pixel, PURPOSE_ENV + 2 * depth)
+    a1, a2 = sequence_point(0, sample, key)
     lx, ly, lz, p_env = sample_env(env, frame, a1, a2)
     if p_env > 0.0:
         fd, fs, p_bsdf = lobe_eval(nx, ny, nz, vx, vy, vz, n_dot_v, alpha, p_diffuse, lx, ly, lz)
@@ -226,9 +225,8 @@ def ambient_light(surf, ray, tr, tg, tb, d0, d1, d2, s0, s1, s2, can_bounce, rea
             cb -= tb * (d2 * fd + s2 * fs) * lb * k * (1.0 - vb)
 
     # technique 2: a direction from the lobes, which is also the bounce ray
-    r1, r2 = next_pair(seed, pixel, sample, work)
-    key = pixel_key(seed, pixel, PURPOSE_BSDF + 2 * depth)
-    a1, a2 = spread_stratum(0, 1, sample, spp, key, r1, r2)
+    key = pixel_key(pixel_seed, pixel, PURPOSE_BSDF + 2 * depth)
+    a1, a2 = sequence_point(0, sample, key)
     t1x, t1y, t1z, t2x, t2y, t2z = orthonormal_basis(nx, ny, nz)
     if a1 < p_diffuse:
         x, y, z = cosine_hemisphere(a1 / p_diffuse, a2)

@@ -29,9 +29,9 @@ from shots.kernels.layout import (
     F_EYE,
     F_HEIGHT,
     F_ORTHO,
+    F_PIXEL_SEED,
     F_SAMPLES,
     F_SEE_THROUGH,
-    F_SEED,
     F_TAN_Y,
     F_U,
     F_V,
@@ -100,7 +100,7 @@ def trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights, env, b
             # invisible floor: its shadow becomes coverage of black (premultiplied: alpha only);
             # the rest of the ray shows the background (nothing stands below the floor)
             shadow = shadow_amount(surf, ray, lights, int(frame[F_AREA_SAMPLES]),
-                                   int(frame[F_SAMPLES]), int(frame[F_SEED]), pixel, sample,
+                                   int(frame[F_SAMPLES]), int(frame[F_PIXEL_SEED]), pixel, sample,
                                    frame, env, bvh, scene, ground, frame[F_SEE_THROUGH] != 0.0,
                                    stack, surf2, work, tstack)  # fmt: skip
             a = shadow * ground[G_STRENGTH]  # unclamped per sample, so the mean is unbiased

@@ -1,7 +1,8 @@
 """Direct light from the look's lights, with shadow rays, and the shadow catcher's shadow.
 
-Area lights take stratified samples whose cells are spread over the pixel's camera samples
-(``shots.kernels.sampling.spread_stratum``), so their shadows are soft at any sample count.
+Area lights take points of the pixel's own progressive sequence, one sequence per light, spread
+over the pixel's camera samples (``shots.kernels.sampling.sequence_point``), so their shadows are
+soft at any sample count.
 A glossy lobe's highlight of an area light (the base layer's or the clearcoat's) comes from two
 techniques, combined by multiple importance sampling with the power heuristic (Veach 1995, §9.2):
 the light samples here, and the reflection rays (``shots.kernels.reflection``) that meet the light
@@ -36,10 +37,9 @@ from shots.kernels.raystack import R_D, R_DEPTH, R_LIGHT_PDF, R_O, R_W
 from shots.kernels.reflection import DELTA_PDF, lobe_weight
 from shots.kernels.sampling import (
     luminance,
-    next_pair,
     pixel_key,
+    sequence_point,
     spread_count,
-    spread_stratum,
 )
 from shots.kernels.surface import (
     S_CLEARCOAT_ROUGHNESS,
@@ -84,8 +84,7 @@ def direct_light(surf, vx, vy, vz, lights, area_samples, n_glossy, n_coat, spp, 
         for s in range(n):
             u1, u2 = 0.5, 0.5
             if area:
-                r1, r2 = next_pair(seed, pixel, sample, work)
-                u1, u2 = spread_stratum(s, n, sample, spp, key, r1, r2)
+                u1, u2 = sequence_point(s, sample, key)
             wx, wy, wz, dist, er, eg, eb = sample_light(lights, k, px, py, pz, u1, u2)
             if er + eg + eb <= 0.0 or wx * gx + wy * gy + wz * gz <= 0.0:
                 continue
@@ -157,8 +156,7 @@ def shadow_amount(surf, ray, lights, area_samples, spp, seed, pixel, sample, fra
         for s in range(n):
             u1, u2 = 0.5, 0.5
             if area:
-                r1, r2 = next_pair(seed, pixel, sample, work)
-                u1, u2 = spread_stratum(s, n, sample, spp, key, r1, r2)
+                u1, u2 = sequence_point(s, sample, key)
             wx, wy, wz, dist, er, eg, eb = sample_light(lights, k, px, py, pz, u1, u2)
             cos = wx * nx + wy * ny + wz * nz
             if cos <= 0.0:

@@ -7,16 +7,16 @@ Everything is borrowed (``shots.kernels.borrow``) at the top of each parallel wo
 are independent, and tiles are dealt to work items round-robin, each with its own scratch.
 
 Sampling contract (relied on by the shading kernels)
-    One call traces one *stratified set* of ``frame[F_SAMPLES]`` camera samples in every active
-    pixel; the kernels below receive ``sample`` (0 … F_SAMPLES − 1, the index within that set)
-    and stratify their per-hit rays over the set with ``spread_count`` / ``spread_stratum`` /
-    ``next_pair`` (``shots.kernels.sampling``). Adaptive sampling (``shots.sampling_control``)
-    calls this kernel once per pass, each pass one such set with its own ``frame[F_SEED]`` (the
-    frame's seed with the pass number folded in), so every pass is stratified on its own and
-    no two passes share random numbers. The one exception is the sample's place in the pixel:
-    it is point ``counts[j, i] + s`` of the pixel's own scrambled Sobol' sequence (seeded by
-    ``frame[F_PIXEL_SEED]``, the same in every pass), so later passes fill the gaps earlier
-    ones left at edges and in textures.
+    One call traces a set of ``frame[F_SAMPLES]`` camera samples in every active pixel; the
+    kernels below receive ``sample``, the pixel's sample count before the set plus the index
+    within it (``counts[j, i] + s``). The sample's place in the pixel and the 2-D numbers of
+    its per-hit rays (light, environment, lobe directions) are point ``sample`` of the pixel's
+    own scrambled Sobol' sequences (``sobol_point``, ``sequence_point`` in
+    ``shots.kernels.sampling``, keyed by ``frame[F_PIXEL_SEED]``, the same in every set), so
+    each set fills the gaps the earlier ones left; ``spread_count`` splits a hit's rays over
+    the set's samples. Adaptive sampling (``shots.sampling_control``) calls this kernel once
+    per set, each with its own ``frame[F_SEED]`` (the frame's seed with the set number folded
+    in) for the rest of the numbers (``next_pair``: Russian roulette, lobe choice).
 """
 
 from __future__ import annotations
@@ -113,7 +113,8 @@ def render_tiles(item, out, frame, lights, env, ground, bvh, scene, active, coun
                     work[W_ACC + c] = 0.0
                 before = counts[j, i]  # the pixel's samples in earlier sets
                 for s in range(spp):
-                    fx, fy = sample_offset(spp, before + s, pixel_seed, pixel)
+                    sample = before + s
+                    fx, fy = sample_offset(spp, sample, pixel_seed, pixel)
                     ox, oy, oz, dx, dy, dz = camera_ray(frame, i + fx, j + fy)
                     f = min(max((j + fy) / height, 0.0), 1.0)
                     bg_r = (1.0 - f) * frame[F_BG_TOP] + f * frame[F_BG_BOTTOM]
@@ -121,7 +122,7 @@ def render_tiles(item, out, frame, lights, env, ground, bvh, scene, active, coun
                     bg_b = (1.0 - f) * frame[F_BG_TOP + 2] + f * frame[F_BG_BOTTOM + 2]
                     work[W_DIM] = 1.0  # dimension 0 placed the sample
                     trace_sample(ox, oy, oz, dx, dy, dz, bg_r, bg_g, bg_b, frame, lights,
-                                 env, bvh, scene, ground, pixel, s, stack, surf,
+                                 env, bvh, scene, ground, pixel, sample, stack, surf,
                                  surf2, work, tstack)  # fmt: skip
                     counts[j, i] += 1
                 for c in range(4):

@@ -25,8 +25,8 @@ from shots.kernels.brdf import (
 from shots.kernels.envlight import env_radiance
 from shots.kernels.layout import (
     F_GLOSSY_SAMPLES,
+    F_PIXEL_SEED,
     F_SAMPLES,
-    F_SEED,
     W_ACC,
 )
 from shots.kernels.raystack import (
@@ -39,11 +39,10 @@ from shots.kernels.raystack import (
     set_start,
 )
 from shots.kernels.sampling import (
-    next_pair,
     orthonormal_basis,
     pixel_key,
+    sequence_point,
     spread_count,
-    spread_stratum,
 )
 from shots.kernels.surface import (
     S_CLEARCOAT,
@@ -146,7 +145,6 @@ def spawn_lobe(surf, ray, nx, ny, nz, roughness, n_rays, purpose, rw0, rw1, rw2,
     """Trace a specular lobe about normal n: ``n_rays`` rays from ``lobe_rays``, carrying light
     of weight ``rw`` (Fresnel × what reaches the lobe); without rays, the environment in the
     mirror direction. Returns the stack size."""
-    seed = int(frame[F_SEED])
     depth = int(ray[R_DEPTH])
     sr, sg, sb = ray[R_SIGMA], ray[R_SIGMA + 1], ray[R_SIGMA + 2]
     vx, vy, vz = -ray[R_D], -ray[R_D + 1], -ray[R_D + 2]
@@ -166,16 +164,14 @@ def spawn_lobe(surf, ray, nx, ny, nz, roughness, n_rays, purpose, rw0, rw1, rw2,
             work[W_ACC + 1] += rw1 * qg
             work[W_ACC + 2] += rw2 * qb
         return sp
-    spp = int(frame[F_SAMPLES])
-    key = pixel_key(seed, pixel, purpose + depth)
+    key = pixel_key(int(frame[F_PIXEL_SEED]), pixel, purpose + depth)
     alpha = alpha_of(roughness)
     t1x, t1y, t1z, t2x, t2y, t2z = orthonormal_basis(nx, ny, nz)
     lvx = vx * t1x + vy * t1y + vz * t1z
     lvy = vx * t2x + vy * t2y + vz * t2z
     g1 = smith_g1(n_dot_v, alpha)
     for s in range(n_rays):
-        r1, r2 = next_pair(seed, pixel, sample, work)
-        a1, a2 = spread_stratum(s, n_rays, sample, spp, key, r1, r2)
+        a1, a2 = sequence_point(s, sample, key)
         hx_, hy_, hz_ = sample_ggx_vndf(lvx, lvy, n_dot_v, alpha, a1, a2)
         hx = hx_ * t1x + hy_ * t2x + hz_ * nx
         hy = hx_ * t1y + hy_ * t2y + hz_ * ny

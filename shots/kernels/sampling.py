@@ -90,19 +90,6 @@ def sobol_point(index, seed):
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def stratum(index, count, u1, u2):
-    """Point ``index`` of a jittered grid of ``count`` cells over [0, 1)², jitter (u1, u2).
-
-    The grid is ceil(√count) wide; with a square count every cell holds exactly one sample.
-    """
-    nx = int(math.ceil(math.sqrt(count)))
-    ny = (count + nx - 1) // nx
-    ix = index % nx
-    iy = index // nx
-    return (ix + u1) / nx, (iy + u2) / ny
-
-
-@njit(cache=True, error_model="numpy", _nrt=False)
 def tent_warp(u):
     """Map u in [0, 1) to an offset in (−1, 1) distributed as the tent filter 1 − |x|.
 
@@ -143,15 +130,8 @@ def orthonormal_basis(nx, ny, nz):
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)
-def _gcd(a, b):
-    while b:
-        a, b = b, a % b
-    return a
-
-
-@njit(cache=True, error_model="numpy", _nrt=False)
 def spread_count(per_hit, samples):
-    """Rays one hit casts when a pixel's ``samples`` camera samples share one stratified set.
+    """Rays one hit casts when a set of ``samples`` camera samples shares the work.
 
     ``per_hit`` is the count wanted with a single camera sample; with more, the pixel's samples
     split the work, so each pixel still gets at least ``per_hit`` (and at least ``samples``)
@@ -161,19 +141,19 @@ def spread_count(per_hit, samples):
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
-def spread_stratum(i, n_hit, sample, samples, key, u1, u2):
-    """Point ``i`` of a hit's ``n_hit`` rays in the pixel-wide jittered grid of n_hit·samples cells.
+def sequence_point(i, sample, key):
+    """The point in [0, 1)² for ray ``i`` of a hit made by the pixel's camera sample ``sample``
+    (counted over all the pixel's sets), for one use ``key`` (``pixel_key``: pixel and purpose).
 
-    Cells are dealt to the camera samples in an order scrambled by ``key`` (fixed per pixel and
-    purpose), so the light sample does not follow the sample's position in the pixel.
+    Each (use, ray) pair has its own scrambled Sobol' sequence (``sobol_point``) whose index is
+    shuffled by nested uniform scrambling too (Burley 2020, §4): the first 2^m indices still map
+    onto one aligned block of the sequence, a (0, m, 2)-net, so a pixel's successive samples
+    fill in one stratified pattern over all its sets, and the shuffle keeps different uses (a
+    light, the environment, the glossy lobe) from moving in step with each other or with the
+    sample's place in the pixel.
     """
-    total = n_hit * samples
-    a = 1 + 2 * (key % total) if total > 1 else 1
-    if total & (total - 1):  # an odd a is coprime to a power of two: no search needed
-        while _gcd(a, total) != 1:
-            a += 1
-    index = ((sample * n_hit + i) * a + (key >> 8)) % total
-    return stratum(index, total, u1, u2)
+    k = pcg_hash((key ^ ((i * 0x9E3779B9) & MASK32)) & MASK32)
+    return sobol_point(owen_scramble(sample & MASK32, k), pcg_hash(k ^ 0x68E31DA4))
 
 
 @njit(cache=True, error_model="numpy", _nrt=False)

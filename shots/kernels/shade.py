@@ -32,9 +32,9 @@ from shots.kernels.layout import (
     BLUE,
     F_AREA_SAMPLES,
     F_MAX_DEPTH,
+    F_PIXEL_SEED,
     F_SAMPLES,
     F_SEE_THROUGH,
-    F_SEED,
     GREEN,
     RED,
     W_ACC,
@@ -91,7 +91,7 @@ from shots.kernels.transmission import medium_attenuation, spawn_transmission
 def shade_hit(surf, ray, t_hit, frame, lights, env, bvh, scene, ground, pixel, sample, stack,
               sp, surf2, work, tstack):  # fmt: skip
     """Shade one surface hit of ``ray`` (N_RAY,); adds to work[W_ACC:+4], returns the stack size."""
-    seed = int(frame[F_SEED])
+    seed = int(frame[F_PIXEL_SEED])  # keys the pixel's sample sequences (sequence_point)
     see_through = frame[F_SEE_THROUGH] != 0.0
     depth = int(ray[R_DEPTH])
     dx, dy, dz = ray[R_D], ray[R_D + 1], ray[R_D + 2]
