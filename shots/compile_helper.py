@@ -31,10 +31,13 @@ from pathlib import Path
 WAIT_LIMIT = 600.0  # seconds this process waits for one function before compiling it itself
 
 
-def helped_kernels() -> list[tuple[object, tuple]]:
-    """(dispatcher, argument types) the helper compiles, in the order a render reaches them."""
+def helped_kernels(albedo: bool = False) -> list[tuple[object, tuple]]:
+    """(dispatcher, argument types) the helper compiles, in the order a render reaches them;
+    with ``albedo``, then the albedo pass's kernels (``shots.albedo``: a batch's exposure
+    reading, which ``shots.warmup.compile_renderer`` compiles after the render)."""
     from numba import types
 
+    from shots.kernels import albedo as albedo_pass
     from shots.kernels import ambient, direct, reflection, surface, transmission, traverse
 
     f32, f64, i64, yes = types.float32, types.float64, types.int64, types.boolean
@@ -67,6 +70,11 @@ def helped_kernels() -> list[tuple[object, tuple]]:
     # spawn_transmission(surf, ray, tdx, tdy, tdz, tw0, tw1, tw2, can_trace, env, frame, stack,
     #                    sp, work)
     through = (row, row, *(f64,) * 6, yes, env, row, table, i64, row)
+    # closest_hits(node_bounds, node_links, tri_verts, tri_ids, origins, directions, t_min, t_max)
+    rays = (nodes, links, verts, types.int32[::1], f32[:, ::1], f32[:, ::1], f32[::1], f32[::1])
+    # base_colours(tri, b1, b2, directions, *the scene's arrays, out)
+    colours = (types.int32[::1], f32[::1], f32[::1], f32[:, ::1], *mesh, table)
+    extra = [(traverse.closest_hits, rays), (albedo_pass.base_colours, colours)] if albedo else []
     return [
         (traverse.closest_hit_one, closest),
         (surface.mesh_surface, hit),
@@ -75,6 +83,7 @@ def helped_kernels() -> list[tuple[object, tuple]]:
         (direct.direct_light, lit),
         (reflection.spawn_reflection, mirror),
         (transmission.spawn_transmission, through),
+        *extra,
     ]
 
 
@@ -116,12 +125,13 @@ def wanted() -> bool:
 class CompileHelper:
     """The helper process and the names of the functions it has put in the cache."""
 
-    def __init__(self, cache_folder: str):
+    def __init__(self, cache_folder: str, albedo: bool = False):
         root = str(Path(__file__).resolve().parents[1])  # this shots, whatever sys.path says
         path = os.pathsep.join(p for p in (root, os.environ.get("PYTHONPATH", "")) if p)
         env = dict(os.environ, NUMBA_CACHE_DIR=cache_folder, PYTHONPATH=path)
         self.process = subprocess.Popen(
-            [sys.executable, "-m", "shots.compile_helper"], stdin=subprocess.PIPE,
+            [sys.executable, "-m", "shots.compile_helper", *(["--albedo"] if albedo else [])],
+            stdin=subprocess.PIPE,
             stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, env=env, text=True)  # fmt: skip
         self.ready: set[str] = set()
         self.finished = False
@@ -167,20 +177,20 @@ def _waiting_compile(dispatcher, helper: CompileHelper):
 
 
 @contextmanager
-def helping_compile():
-    """Within the block, a helper process compiles ``helped_kernels`` when the cache is cold;
-    this process loads them from the cache when it reaches them. Yields the ``CompileHelper``,
-    or None when there is none."""
+def helping_compile(albedo: bool = False):
+    """Within the block, a helper process compiles ``helped_kernels(albedo)`` when the cache is
+    cold; this process loads them from the cache when it reaches them. Yields the
+    ``CompileHelper``, or None when there is none."""
     if not wanted():
         yield None
         return
     from numba.core import config
 
-    kernels = helped_kernels()
+    kernels = helped_kernels(albedo)
     if not cache_is_cold(kernels):
         yield None
         return
-    helper = CompileHelper(config.CACHE_DIR)
+    helper = CompileHelper(config.CACHE_DIR, albedo)
     try:
         for dispatcher, _ in kernels:
             dispatcher.compile = _waiting_compile(dispatcher, helper)
@@ -200,7 +210,7 @@ def _exit_with_parent() -> None:
 def main() -> None:
     """The helper process: compile ``helped_kernels`` into the cache, one line per function."""
     threading.Thread(target=_exit_with_parent, daemon=True).start()
-    for dispatcher, signature in helped_kernels():
+    for dispatcher, signature in helped_kernels(albedo="--albedo" in sys.argv[1:]):
         dispatcher.compile(signature)
         print(qualified_name(dispatcher), flush=True)
 

@@ -48,13 +48,21 @@ def gone(pid: int, seconds: float) -> bool:
 
 
 def test_no_helper_on_a_warm_cache(monkeypatch):
-    # once the renderer is compiled (or loaded), the cache holds an entry under exactly the
-    # helper's argument types, so a drifted type shows here as a cold cache
+    # once the renderer is compiled (or loaded), the cache holds an entry under each of the
+    # helper's argument types
     monkeypatch.delenv("SHOTS_COMPILE_HELPER", raising=False)
     compile_renderer()
-    assert not cache_is_cold(helped_kernels())
-    with helping_compile() as helper:
+    assert not cache_is_cold(helped_kernels(albedo=True))
+    with helping_compile(albedo=True) as helper:
         assert helper is None
+
+
+def test_albedo_kernels_have_the_types_the_albedo_pass_uses():
+    # the albedo pass calls them from Python, so the loaded signatures are the call's own types
+    compile_renderer()
+    render_only = len(helped_kernels())
+    for dispatcher, signature in helped_kernels(albedo=True)[render_only:]:
+        assert tuple(signature) in [tuple(s) for s in dispatcher.signatures], dispatcher
 
 
 def test_no_helper_when_switched_off(monkeypatch, tmp_path):

@@ -492,7 +492,7 @@ class Batch:
 
         reporter = self.reporter
         with announce_compiles(reporter.console, reporter.progress, reporter.quiet):
-            with helping_compile():
+            with helping_compile(albedo=True):
                 compile_renderer()
 
     def _inspect(self, state: ModelState) -> None:
