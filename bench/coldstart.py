@@ -7,16 +7,18 @@ Every run is a fresh interpreter (a subprocess) with its own empty kernel cache 
 machine is reused. Three measurements:
 
 - cold render: ``shots render MODEL --size 64x64`` with the empty cache: wall and CPU seconds of
-  the whole command (imports, numba's compile, the render, the file), and where the compile
-  went: every dispatcher that numba compiled, with its type specialisations and its own seconds
-  (``numba:compile`` events, minus the time spent compiling the functions it calls);
+  the whole command (imports, numba's compile, the render, the file; CPU includes the compile
+  helper process, ``shots.compile_helper``), and where the compile went: every dispatcher that
+  numba compiled in the command's own process, with its type specialisations and its own
+  seconds (``numba:compile`` events, minus the time spent compiling the functions it calls;
+  a function the helper compiled is loaded here, and its wait is in its caller's seconds);
 - warm render: the same command again on the cache the cold one left: seconds for the imports,
   and the warm start, everything after the imports (loading the kernels from the cache, the
   model, the render, the file);
 - cold batch: ``shots batch`` of two demo models at 64 px with two worker processes on another
   empty cache: wall and CPU, and how many kernels each process compiled (numba's cache-miss
-  count, written by every process as it exits); the batch compiles in its own process before the
-  workers start, so each worker's count should be 0.
+  count, written by every process as it exits); the batch compiles in its own process (and its
+  compile helper) before the workers start, so each worker's count should be 0.
 
 The model is the first demo model (``shots.demo.demo_models()``). Wall times depend on what else
 runs on the machine (the load average is printed); CPU seconds much less. The last line is
@@ -87,6 +89,8 @@ def _report_compiles():
                     hits += sum(value.stats.cache_hits.values())
     import multiprocessing
     role = "batch" if multiprocessing.parent_process() is None else "worker"
+    if sys.argv and sys.argv[0].endswith("compile_helper.py"):
+        role = "helper"  # shots.compile_helper, started by the batch on a cold cache
     with open(os.environ["SHOTS_BENCH_COMPILES"], "a") as f:
         f.write(json.dumps({"pid": os.getpid(), "role": role, "compiled": misses,
                             "loaded": hits}) + "\n")

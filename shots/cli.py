@@ -116,13 +116,14 @@ def render(
     limit: LimitOpt = None,
 ) -> None:
     """Render one model with a preset's shots (default: one three-quarter still)."""
+    from shots.compile_helper import helping_compile
     from shots.limits import preset_with_limits
     from shots.pipeline import render_model
     from shots.presets import load_preset
     from shots.warmup import announce_compiles
 
     try:
-        with announce_compiles(err):
+        with announce_compiles(err), helping_compile():
             written = render_model(
                 model,
                 output,

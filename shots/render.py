@@ -3,8 +3,9 @@
     prepared = prepare_scene(scene)                 # once per model
     rgba = render_frame(prepared, camera, look)     # (h, w, 4) float32, premultiplied linear
 
-Everything per pixel happens in one numba kernel (``shots.kernels.image.render_image``); this
-module only packs the scene, the look, the camera and the floor into the flat arrays it reads.
+Everything per pixel happens in one numba kernel (``shots.kernels.image.render_items``), run on
+one Python thread per numba thread (``trace_set``); this module only packs the scene, the look,
+the camera and the floor into the flat arrays it reads.
 
 Image formation
     Camera samples on a jittered grid per stratified set (a square count is stratified exactly),
@@ -39,8 +40,10 @@ from __future__ import annotations
 
 import functools
 import math
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 
 from shots import denoise as denoiser
@@ -309,7 +312,7 @@ def render_frame_counted(
     def run_pass(samples, seed, active, out, counts):
         frame[layout.F_SAMPLES] = samples
         frame[layout.F_SEED] = seed
-        image.render_image(out, frame, *arrays, active, counts)
+        trace_set(out, frame, arrays, active, counts)
 
     shape = (camera.height, camera.width)
     seed = int(look.seed) & 0xFFFFFFFF
@@ -333,6 +336,22 @@ def render_frame_counted(
     if surfaces is not None:
         out = denoiser.denoise(out, surfaces, variance)
     return out, counts
+
+
+def trace_set(out, frame, arrays, active, counts) -> None:
+    """Trace one stratified set (``shots.kernels.image.render_items``) on as many threads as
+    numba is set to use here (``numba.set_num_threads``, ``NUMBA_NUM_THREADS``): thread t takes
+    work items t, t + n, …; the kernel releases the GIL, so the threads run at once."""
+    threads = max(1, min(numba.get_num_threads(), image.WORK_ITEMS))
+    args = (out, frame, *arrays, active, counts)
+    if threads == 1:
+        image.render_items(0, 1, *args)
+        return
+    with ThreadPoolExecutor(threads, thread_name_prefix="shots-render") as pool:
+        shares = [pool.submit(image.render_items, first, threads, *args)
+                  for first in range(threads)]  # fmt: skip
+        for share in shares:
+            share.result()
 
 
 def lift_shadow_noise_floor(rgba: np.ndarray, floor: float = SHADOW_NOISE_FLOOR) -> None:

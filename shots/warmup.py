@@ -20,8 +20,9 @@ from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
 
 from shots.kernel_cache import kernel_cache_folder
 
-# What the first run waits, as bench/coldstart.py measures it on two cores.
-COMPILE_ESTIMATE = "up to a minute"
+# What the first run waits, as bench/coldstart.py measures it on two cores (about 25 s for a
+# render, the helper process compiling on the second core; shots.compile_helper).
+COMPILE_ESTIMATE = "about half a minute"
 
 _compiled_here = False
 

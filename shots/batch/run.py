@@ -487,11 +487,13 @@ class Batch:
     def _compile_kernels(self) -> None:
         """Compile (or load) the kernels here, once, before local workers start: they then only
         load them from the cache, where each would otherwise compile them at the same time."""
+        from shots.compile_helper import helping_compile
         from shots.warmup import announce_compiles, compile_renderer
 
         reporter = self.reporter
         with announce_compiles(reporter.console, reporter.progress, reporter.quiet):
-            compile_renderer()
+            with helping_compile(albedo=True):
+                compile_renderer()
 
     def _inspect(self, state: ModelState) -> None:
         """Hash the model and read its manifest; a model that cannot be read fails here, alone."""

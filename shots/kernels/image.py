@@ -1,9 +1,9 @@
-"""The image: every pixel's camera samples in one parallel kernel → premultiplied linear RGBA.
+"""The image: every pixel's camera samples, on every thread → premultiplied linear RGBA.
 
 Inputs are few wide arrays (``shots.kernels.layout``); the BVH and the scene go as tuples:
     bvh = (node_bounds, node_links, tri_verts, tri_ids)          shots.accel.Bvh
     scene = (verts, faces, materials, texels, tex_info)          packed by shots.render
-Everything is borrowed (``shots.kernels.borrow``) at the top of each parallel work item; pixels
+Everything is borrowed (``shots.kernels.borrow``) at the top of each work item; pixels
 are independent, and tiles are dealt to work items round-robin, each with its own scratch.
 
 Sampling contract (relied on by the shading kernels)
@@ -14,9 +14,10 @@ Sampling contract (relied on by the shading kernels)
     own scrambled Sobol' sequences (``sobol_point``, ``sequence_point`` in
     ``shots.kernels.sampling``, keyed by ``frame[F_PIXEL_SEED]``, the same in every set), so
     each set fills the gaps the earlier ones left; ``spread_count`` splits a hit's rays over
-    the set's samples. Adaptive sampling (``shots.sampling_control``) calls this kernel once
-    per set, each with its own ``frame[F_SEED]`` (the frame's seed with the set number folded
-    in) for the rest of the numbers (``next_pair``: Russian roulette, lobe choice).
+    the set's samples. Adaptive sampling (``shots.sampling_control``) calls ``render_items``
+    once per set on every thread, each set with its own ``frame[F_SEED]`` (the frame's seed
+    with the set number folded in) for the rest of the numbers (``next_pair``: Russian
+    roulette, lobe choice).
 """
 
 from __future__ import annotations
@@ -24,7 +25,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 from shots.kernels.borrow import borrow
 from shots.kernels.camera_sample import camera_ray, sample_offset, trace_sample
@@ -49,17 +50,19 @@ from shots.kernels.surface import (
 from shots.kernels.traverse import new_stack
 
 TILE = 8  # pixels per tile edge
-WORK_ITEMS = 256  # parallel items; tiles are dealt round-robin so threads stay balanced
+WORK_ITEMS = 256  # tiles are dealt to items round-robin, items to threads: threads stay balanced
 
 
 # No fastmath here: numba passes it on to the callees it compiles, and contracting the
 # watertight edge functions into FMAs lets rays through shared edges (Woop et al. 2013).
-@njit(cache=True, parallel=True, error_model="numpy")
-def render_image(out, frame, lights, env, ground, bvh, scene, active, counts):
-    """Render one stratified set of samples in every active pixel into ``out``.
+@njit(cache=True, nogil=True, error_model="numpy")
+def render_items(first, step, out, frame, lights, env, ground, bvh, scene, active, counts):
+    """Render work items ``first``, ``first + step``, … (below WORK_ITEMS) of one stratified set
+    of samples in every active pixel into ``out``; one thread's share (``shots.render``).
 
     Parameters
     ----------
+    first, step : int, the items this call takes.
     out : (h, w, 4) float32, receives the set's mean premultiplied linear RGBA in active
         pixels (the others are left as they are).
     frame : (N_FRAME,) float64 camera, settings, background and SH (``shots.kernels.layout``).
@@ -69,10 +72,12 @@ def render_image(out, frame, lights, env, ground, bvh, scene, active, counts):
     active : (h, w) uint8, non-zero where the pixel takes this set.
     counts : (h, w) int32, each active pixel's count grows by the samples it traced.
 
-    The parallel loop only allocates each work item's scratch and calls ``render_tiles``: numba's
-    parallel passes and type inference work on this function's whole body, so it stays small.
+    Not a ``parallel=True`` kernel: numba's parallel passes and the gufunc they build cost
+    seconds of every cold start, so the threads are Python's (``nogil``), each calling this
+    kernel, which only allocates each item's scratch and calls ``render_tiles``. Tiles are dealt
+    to items and every item has its own scratch, so pixels do not depend on the thread count.
     """
-    for item in prange(WORK_ITEMS):
+    for item in range(first, WORK_ITEMS, step):
         # scratch owned here; render_tiles gets borrowed (uncounted) views of everything
         owned = (new_stack(), np.empty((STACK_RAYS, N_RAY), np.float64),
                  np.zeros((2, N_SURFACE), np.float64), np.zeros(N_WORK, np.float64))  # fmt: skip
@@ -81,7 +86,7 @@ def render_image(out, frame, lights, env, ground, bvh, scene, active, counts):
         b_bvh = (borrow(bvh[0]), borrow(bvh[1]), borrow(bvh[2]), borrow(bvh[3]))
         b_scene = (borrow(scene[0]), borrow(scene[1]), borrow(scene[2]), borrow(scene[3]),
                    borrow(scene[4]))  # fmt: skip
-        render_tiles(np.int64(item), borrow(out), borrow(frame), borrow(lights), b_env,
+        render_tiles(item, borrow(out), borrow(frame), borrow(lights), b_env,
                      borrow(ground), b_bvh, b_scene, borrow(active), borrow(counts),
                      scratch)  # fmt: skip
         owned[3][W_DIM] = 0.0  # the scratch stays owned (alive) until here, past its views

@@ -72,7 +72,8 @@ GLOSSY_METAL = 0.6
 # R_LIGHT_PDF of a mirror ray: a delta lobe, which no light sample can share, so the area lights
 # it meets count in full (``shots.kernels.direct.lights_seen``)
 DELTA_PDF = np.inf
-PURPOSE_BASE, PURPOSE_COAT = 3000, 4000  # pixel_key purposes (one per depth)
+# pixel_key purposes (one per depth); numpy scalars, not Literal[int]: spawn_lobe compiles once
+PURPOSE_BASE, PURPOSE_COAT = np.int64(3000), np.int64(4000)
 
 
 @njit(cache=True, inline="always", error_model="numpy", _nrt=False)
