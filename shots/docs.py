@@ -50,9 +50,9 @@ KEY_NOTES = {
     "ImageSettings.width": "Image width in pixels.",
     "ImageSettings.height": "Image height in pixels.",
     "ImageSettings.samples": "Camera samples per pixel. 0 (the default) samples adaptively: each "
-                             "pixel takes stratified sets until its estimated error is under "
+                             "pixel takes sets of samples until its estimated error is under "
                              "`noise_target`; N forces exactly N in every pixel (previews, "
-                             "references; a square number is stratified exactly).",
+                             "references; a power of two is stratified exactly).",
     "ImageSettings.noise_target": "Adaptive sampling stops a pixel when its estimated error (one "
                                   "standard error, with its 3×3 neighbours) is under this many "
                                   "8-bit sRGB codes (0–255) of the displayed colour or alpha.",
