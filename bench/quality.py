@@ -7,7 +7,7 @@ thumbnail (built-in ``thumbnail``) and the first hero view (built-in ``demo-hero
 pixels wide, three ways: a reference at 1024 samples per pixel (cached under ``--cache``, keyed by
 the model's bytes, the frame, the size and a hash of the renderer's code), the preset's default
 sampling, and a fixed 16 samples per pixel; then both again with ``[image] denoise`` on
-(``shots.denoise``; ``RELAXED_TARGET`` there sets the noise target of the filtered pixels).
+(``shots.denoise``).
 ``--quick``: 256 px, thumbnails only.
 
 Error is measured in 8-bit display codes (0–255) of the image as shown over black (display colour

@@ -39,6 +39,7 @@ from shots.kernels.albedo import (
     N_ALBEDO,
     base_colours,
 )
+from shots.kernels.sampling import tent_warp
 
 METAL = 0.5  # metallic above this: the colour is a reflectance of the room, not an albedo
 WHITE = 0.99  # a base colour with every channel at least this is the untextured default
@@ -98,8 +99,7 @@ def footprint_albedo(prepared, camera: Camera) -> np.ndarray:
     """(h, w, 3) base colour averaged over each pixel as a render sees it: ``GRID``² rays on the
     renderer's tent filter (radius 1 pixel, ``shots.render``), each reading the textures over
     its share of the pixel (as the renderer's ray cones do), misses counting as 0."""
-    strata = (np.arange(GRID) + 0.5) / GRID
-    offsets = np.where(strata < 0.5, np.sqrt(2 * strata) - 1, 1 - np.sqrt(2 - 2 * strata))
+    offsets = [tent_warp((k + 0.5) / GRID) for k in range(GRID)]
     total = np.zeros((camera.height, camera.width, 3))
     for dy in offsets:
         for dx in offsets:

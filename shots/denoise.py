@@ -45,12 +45,11 @@ SIGMA_DEPTH = 1.0
 SIGMA_LUMA = 2.0
 ALBEDO_FLOOR = 0.02  # darker albedo channels demodulate by this (no division by zero)
 TINY = 1e-10
-# With adaptive sampling, the filtered pixels stop at this many times the noise target. Measured
-# with bench/quality.py --quick (demo thumbnails at 256 px; RMSE in codes, default → denoised):
-# at 2 the table 2.25 → 2.59 and the sofa 2.29 → 2.77 lose more to the fewer samples than the
-# filter wins back (total CPU -4 %); at 1.5 still 2.44 and 2.51; at 1 every model gains or keeps
-# its error (worst 3.22 → 2.65) for 7-9 % more CPU. So the target is kept as it is.
-RELAXED_TARGET = 1.0
+# The filtered pixels keep the look's noise target. A looser one was measured with
+# bench/quality.py --quick (demo thumbnails at 256 px; RMSE in codes, default → denoised): at 2×
+# the table 2.25 → 2.59 and the sofa 2.29 → 2.77 lose more to the fewer samples than the filter
+# wins back (total CPU −4 %); at 1.5× still 2.44 and 2.51; at 1× every model gains or keeps its
+# error (worst 3.22 → 2.65) for 7-9 % more CPU.
 GAUSS3 = np.array([1 / 4, 1 / 2, 1 / 4])  # the 3 × 3 Gaussian that steadies the variance
 
 

@@ -8,22 +8,24 @@ one Python thread per numba thread (``trace_set``); this module only packs the s
 the camera and the floor into the flat arrays it reads.
 
 Image formation
-    Camera samples on a jittered grid per stratified set (a square count is stratified exactly),
-    warped to a tent filter of radius 1 pixel (filter importance sampling, Ernst et al. 2006),
-    equally weighted; a single sample goes through the pixel centre. ``look.samples`` = N > 0
-    gives every pixel one set of exactly N samples; 0 renders passes of a few samples until each
-    pixel's estimated error is under ``look.noise_target`` display codes, between
-    ``look.min_samples`` and ``look.max_samples`` (``shots.sampling_control``). ``look.denoise``
-    then filters the matte product pixels' illumination (``shots.denoise``), guided by their
-    first surfaces (``shots.albedo.first_surfaces``); those pixels stop at ``RELAXED_TARGET`` × the
-    target. Every random number is a hash of (seed, pixel, sample, dimension), the pass number
-    folded into the seed: reruns are bit-identical and do not depend on the number of threads.
+    Camera samples are points of the pixel's own scrambled Sobol' sequence, warped to a tent
+    filter of radius 1 pixel (filter importance sampling, Ernst et al. 2006), equally weighted;
+    a single sample goes through the pixel centre. ``look.samples`` = N > 0 gives every pixel
+    exactly N samples; 0 renders sets of a few samples until each pixel's estimated error is
+    under ``look.noise_target`` display codes, between ``look.min_samples`` and
+    ``look.max_samples`` (``shots.sampling_control``). ``look.denoise`` then filters the matte
+    product pixels' illumination (``shots.denoise``), guided by their first surfaces
+    (``shots.albedo.first_surfaces``). Every 2-D number of a sample (its place, light,
+    environment and lobe directions) continues a per-pixel sequence over all its sets; the rest
+    are hashes of (seed, pixel, sample, dimension) with the set number folded into the seed
+    (``shots.kernels.sampling``): reruns are bit-identical and do not depend on the number of
+    threads.
 Sample counts per hit
     ``area_light_samples`` (shadow rays per area light) and ``glossy_samples`` (reflection rays of
     a glossy surface) are counts for one camera sample.
-    With several camera samples the pixel's samples share one stratified set: each hit casts
-    ceil(count / samples) rays in its own cells of a pixel-wide grid, so a pixel still gets at
-    least max(count, samples) well-spread rays for the cost of about one per hit.
+    With several camera samples in a set, each hit casts ceil(count / samples) rays, the next
+    points of their sequences, so a pixel still gets at least max(count, samples) well-spread
+    rays for the cost of about one per hit.
 Environment light and bounces (``shots.kernels.ambient``)
     Diffuse light (and glossy lobes rougher than 0.3 for a dielectric to 0.6 for a metal) is the
     environment's SH irradiance minus what the model blocks, plus ``look.diffuse_bounces``
@@ -321,13 +323,10 @@ def render_frame_counted(
     if look.samples > 0:
         out, counts = sampling_control.render_fixed(run_pass, shape, look.samples, seed)
     else:
-        target = look.noise_target
         if surfaces is not None:
-            relaxed = denoiser.RELAXED_TARGET * target
-            target = np.where(denoiser.filterable(surfaces), relaxed, target)
             variance = np.zeros(shape + (4,), np.float64)
         out, counts = sampling_control.render_adaptive(
-            run_pass, shape, seed, target, look.min_samples, look.max_samples,
+            run_pass, shape, seed, look.noise_target, look.min_samples, look.max_samples,
             look.exposure, look.tone_map,
             SHADOW_NOISE_FLOOR if look.ground.kind == "shadow_catcher" else 0.0, variance,
         )  # fmt: skip

@@ -3,13 +3,12 @@
 Fixed count (``look.samples`` = N > 0)
     One stratified set of N samples per pixel: exact, for previews and references.
 Adaptive (``look.samples`` = 0)
-    Every pixel first takes two stratified sets of ``PILOT_SAMPLES``; then, in rounds, each pixel
-    still short of its target takes one more stratified set, sized (a square count, so the set is
-    stratified exactly) to bring it to the samples its error estimate asks for. Each set has the
-    set number folded into the seed (the contract in ``shots.kernels.image``); one large set
-    beats many small ones, as stratification works within a set. The sample's place in the
-    pixel is the exception: it continues one scrambled Sobol' sequence over all the pixel's
-    sets, so coverage and texture detail keep converging as sets are added.
+    Every pixel first takes two sets of ``PILOT_SAMPLES``; then, in rounds, each pixel still
+    short of its target takes one more set, sized (a square count) to bring it to the samples
+    its error estimate asks for. Each set has the set number folded into the seed (the
+    contract in ``shots.kernels.image``), except for the samples' 2-D numbers (place in the
+    pixel, light, environment and lobe directions): they continue the pixel's own scrambled
+    Sobol' sequences over all its sets, so each set fills the gaps the earlier ones left.
     The error estimate comes from the pixel's own sets: the per-sample variance from the spread
     of its set means (the between-groups mean square of a one-way analysis of variance: each set
     mean is an unbiased estimate of the pixel, so the estimate is valid, if conservative, for
@@ -86,7 +85,7 @@ def render_adaptive(
     run_pass: PassRunner,
     shape: tuple[int, int],
     seed: int,
-    noise_target: float | np.ndarray,
+    noise_target: float,
     min_samples: int,
     max_samples: int,
     exposure: float = 0.0,
@@ -96,8 +95,6 @@ def render_adaptive(
 ):
     """Stratified sets until each pixel's estimated error is under ``noise_target`` codes.
 
-    ``noise_target``: one value, or an (h, w) array of one per pixel (a denoised render lets
-    the pixels its filter will smooth stop earlier).
     ``shadow_floor``: the shadow-catcher alpha that ``shots.render.lift_shadow_noise_floor`` will
     remove from pure-shadow pixels (0 without a catcher); error below it is not shown.
     ``variance_out``: an (h, w, 4) float64 array to receive the estimated variance of each
