@@ -16,6 +16,7 @@ from gltf_builder import GltfBuilder
 from rich.console import Console
 from typer.testing import CliRunner
 
+import shots.gltf
 from shots.batch import jobs, run_batch
 from shots.batch.cli_command import batch
 from shots.batch.manifest import index_csv_bytes
@@ -199,22 +200,51 @@ def test_a_link_to_a_model_outside_the_catalog_fails_alone(tmp_path):
 
 # ---------------------------------------------------------------- 5. time limit ---------------
 
-def test_a_model_over_the_time_limit_fails_alone(tmp_path):
+# A model whose load does not return for a minute, however fast the machine: only the limit can
+# stop it within the test. In this process through monkeypatch; in spawned worker processes
+# through this sitecustomize, which Python imports at start-up from PYTHONPATH.
+ENDLESS_LOAD = """
+import time
+import shots.gltf
+_real = shots.gltf.load_scene
+
+def _load(path, *args, **kwargs):
+    if str(path).endswith("endless.gltf"):
+        # Python code, which the limit's alarm interrupts; after a minute it gives up and
+        # loads, so a broken limit fails the test instead of hanging it
+        give_up = time.monotonic() + 60
+        while time.monotonic() < give_up:
+            pass
+    return _real(path, *args, **kwargs)
+
+shots.gltf.load_scene = _load
+"""
+
+
+def endless_catalog(tmp_path) -> Path:
+    """A catalog of the Box sample and a copy of it whose load never returns."""
     catalog = tmp_path / "catalog"
     catalog.mkdir()
     shutil.copy(SAMPLES / "Box.gltf", catalog / "Box.gltf")
-    shutil.copy(HOSTILE / "bomb_instancing.gltf", catalog / "slow.gltf")
-    # the instance budget raised so only the time limit can stop the 1 M primitive instances
-    # the kernels loaded first (a run without the slow model), so only the slow model's
-    # own work counts against the one second
+    shutil.copy(SAMPLES / "Box.gltf", catalog / "endless.gltf")
+    return catalog
+
+
+def test_a_model_over_the_time_limit_fails_alone(tmp_path, monkeypatch):
+    catalog = endless_catalog(tmp_path)
+    # the loader is put back after the test, whatever the hook sets it to
+    monkeypatch.setattr("shots.gltf.load_scene", shots.gltf.load_scene)
+    exec(ENDLESS_LOAD, {})
+    # the kernels loaded first (a run without the endless model), so the Box's render is not
+    # what the limit measures
     run_batch(catalog / "Box.gltf", write_preset(tmp_path), tmp_path / "warm", quiet=True,
               workers=1)
-    preset = write_preset(tmp_path, STILL + "[limits]\ninstances = 2000000\nseconds = 1\n")
+    preset = write_preset(tmp_path, STILL + "[limits]\nseconds = 3\n")
     out = tmp_path / "out"
     summary = run_batch(catalog, preset, out, quiet=True, workers=1)
     errors = {m.listed_as: m.error for m in summary.models}
     assert errors["Box.gltf"] is None
-    assert "took more than 1 s (limit seconds)" in errors["slow.gltf"]
+    assert "took more than 3 s (limit seconds)" in errors["endless.gltf"]
     catalog_outputs_exist(out)
 
 
@@ -465,15 +495,17 @@ def test_check_reads_the_header_before_decoding_a_huge_png(tmp_path):
 
 
 @pytest.mark.slow
-def test_a_worker_process_over_the_time_limit_fails_the_model_alone(tmp_path):
-    catalog = tmp_path / "catalog"
-    catalog.mkdir()
-    shutil.copy(SAMPLES / "Box.gltf", catalog / "Box.gltf")
-    shutil.copy(HOSTILE / "bomb_instancing.gltf", catalog / "slow.gltf")
+def test_a_worker_process_over_the_time_limit_fails_the_model_alone(tmp_path, monkeypatch):
+    catalog = endless_catalog(tmp_path)
+    hooks = tmp_path / "hooks"
+    hooks.mkdir()
+    (hooks / "sitecustomize.py").write_text(ENDLESS_LOAD)  # every spawned worker imports it
+    monkeypatch.setenv("PYTHONPATH", os.pathsep.join(
+        [str(hooks), *filter(None, [os.environ.get("PYTHONPATH")])]))
     # a fresh worker's first task also loads the compiled kernels: room for that
-    preset = write_preset(tmp_path, STILL + "[limits]\ninstances = 2000000\nseconds = 20\n")
+    preset = write_preset(tmp_path, STILL + "[limits]\nseconds = 20\n")
     summary = run_batch(catalog, preset, tmp_path / "out", quiet=True, workers=2)
     errors = {m.listed_as: m.error for m in summary.models}
     assert errors["Box.gltf"] is None
-    assert "took more than 20 s (limit seconds)" in errors["slow.gltf"]
+    assert "took more than 20 s (limit seconds)" in errors["endless.gltf"]
     catalog_outputs_exist(tmp_path / "out")
