@@ -71,19 +71,21 @@ def sobol_point(index, seed):
     has one point in each of the 2^m elementary intervals of area 2^-m (Niederreiter 1992,
     "Random Number Generation and Quasi-Monte Carlo Methods", §4.1). So samples added to a
     pixel later fill the gaps the earlier ones left, where independent sets would not.
+
+    No loop over the index bits: the first dimension is the index's bits reversed; the second's
+    generator matrix is Pascal's triangle mod 2, whose entry C(j, i) is odd exactly when the bits
+    of i are among those of j (Lucas 1878), so its product with the index is a sum over bit
+    supersets, five shift-and-xor steps, one per bit of a bit's position.
     """
-    x = 0
-    y = 0
-    v = 0x80000000
     i = index & MASK32
-    bit = 0
-    while i:
-        if i & 1:
-            x ^= 0x80000000 >> bit
-            y ^= v
-        v ^= v >> 1
-        i >>= 1
-        bit += 1
+    y = i
+    y ^= (y >> 1) & 0x55555555
+    y ^= (y >> 2) & 0x33333333
+    y ^= (y >> 4) & 0x0F0F0F0F
+    y ^= (y >> 8) & 0x00FF00FF
+    y ^= (y >> 16) & 0x0000FFFF
+    x = reverse_bits(i)
+    y = reverse_bits(y)
     x = owen_scramble(x, pcg_hash(seed & MASK32))
     y = owen_scramble(y, pcg_hash((seed ^ 0x5BD1E995) & MASK32))
     return (x + 0.5) * (1.0 / 4294967296.0), (y + 0.5) * (1.0 / 4294967296.0)
