@@ -84,10 +84,12 @@ def test_a_lucky_pixel_does_not_stop_alone():
     assert np.all(smoothed_square(np.full((5, 5), 0.5)) == 0.25)
 
 
-def test_next_sets_are_square_and_fit_the_room():
-    short = np.array([0, 1, 5, 24, 30, 100, 100])
-    room = np.array([50, 50, 50, 50, 50, 50, 3])
-    assert next_set_size(short, room).tolist() == [0, 4, 9, 25, 36, 49, 0]
+def test_next_sets_double_the_count_within_the_room():
+    # a pixel's count goes 8, 16, 32, …: each stop is a whole 2^m block of its Sobol' sequence
+    counts = np.array([8, 8, 16, 32, 32, 48, 63])
+    short = np.array([0, 1, 100, 5, 100, 100, 100])
+    room = np.array([56, 56, 48, 32, 20, 16, 1])
+    assert next_set_size(counts, short, room).tolist() == [0, 8, 16, 32, 20, 16, 0]
 
 
 def synthetic_runner(sigma_codes: np.ndarray):
@@ -106,17 +108,18 @@ def synthetic_runner(sigma_codes: np.ndarray):
 
 
 def test_stop_rule_on_streams_of_known_variance():
-    # a pixel stops once σ/√n is under the target: with σ = target·√32 that is n ≈ 32
+    # a pixel stops once σ/√n is under the target: with σ = target·√24 that is n ≈ 24, which
+    # the doubling counts (8, 16, 32, …) first cover at 32
     target = 1.0
     sigma = np.zeros((40, 40))
-    sigma[:, 10:20] = target * np.sqrt(32)
+    sigma[:, 10:20] = target * np.sqrt(24)
     sigma[:, 20:] = 1000.0  # never meets the target
     rgba, counts = render_adaptive(synthetic_runner(sigma), sigma.shape, 5, target, 8, 128,
                                    0.0, "none")  # fmt: skip
     assert np.all(counts[:, :9] == 8)  # noiseless: the minimum
     assert np.all(counts[:, 21:] == 128)  # hopeless: the maximum
     middle = counts[:, 11:19]
-    assert 24 <= np.median(middle) <= 48
+    assert np.median(middle) == 32
     # the error left is about the target (one standard error)
     left = 255.0 * (rgba[:, 11:19, 3] - 0.5)
     assert 0.5 * target < np.sqrt(np.mean(left**2)) < 1.5 * target
