@@ -92,7 +92,7 @@ class Look:
     samples: int = 4  # camera samples per pixel (square = exact strata); 0 = adaptive:
     noise_target: float = 2.0  # adaptive: stop a pixel under this error in 8-bit sRGB codes
     min_samples: int = 8  # adaptive: samples every pixel takes before its error is judged
-    max_samples: int = 64  # adaptive: samples a pixel takes at most
+    max_samples: int = 128  # adaptive: samples a pixel takes at most
     area_light_samples: int = 4  # shadow rays per area light per hit
     glossy_samples: int = 4  # reflection rays for rough surfaces
     max_depth: int = 4  # reflection/refraction recursion limit

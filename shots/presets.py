@@ -109,7 +109,7 @@ class ImageSettings(Table):
     samples: int = Field(0, ge=0, le=4096)
     noise_target: float = Field(2.0, ge=0.1, le=64.0)
     min_samples: int = Field(8, ge=8, le=4096)
-    max_samples: int = Field(64, ge=8, le=4096)
+    max_samples: int = Field(128, ge=8, le=4096)
     light_samples: int = Field(4, ge=1, le=1024)  # shadow rays per area light per hit
     gloss_samples: int = Field(4, ge=1, le=1024)  # reflection rays for rough surfaces
     bounces: int = Field(4, ge=0, le=64)  # reflection/refraction recursion limit
