@@ -18,12 +18,15 @@ import numpy as np
 
 from shots.kernels import bvh_build, offset, traverse
 
-# SAH constants: one visit of a 4-wide node against one ray–triangle test. Timed in these
-# kernels on camera rays a node visit costs about 1.5 triangle tests; 1.2 keeps traversal within
-# 64 bytes per triangle on finely tessellated meshes (the icosphere of bench/raycast.py: 65.0 at
-# 1.0, 61.5 at 1.2) at no speed cost the benchmark can resolve (within ±5%).
+# SAH constants: one visit of a 4-wide node against one test of a block of up to four triangles
+# (bvh_build.BLOCK). Earlier, with one triangle tested at a time, a node visit timed at about 1.5
+# triangle tests on camera rays and 1.2 kept traversal within 64 bytes per triangle. With block
+# tests, bench/raycast.py --quick (one thread, ours / Embree; camera, incoherent; one run each)
+# could not tell the settings apart: a block costing 1.0, 1.5 or 2.0 gave 0.83/0.70, 0.82/0.71,
+# 0.81/0.71 (per-triangle costs of 0.3-0.6 likewise 0.79-0.82/0.69-0.72); all of them read
+# 47-50 bytes per triangle where per-triangle costs of 1.0 read 58-63. 1.5 is the middle.
 COST_TRAVERSAL = 1.2
-COST_INTERSECT = 1.0
+COST_INTERSECT = 1.5
 
 
 class Bvh(NamedTuple):
@@ -35,7 +38,9 @@ class Bvh(NamedTuple):
         (min x, max x, min y, max y, min z, max z; one column per child), row 6 holds the links.
     node_links : (m, 8, 4) int32 view of the same records; ``node_links[:, 6]`` are the child
         links: inner node index (>= 0) or encoded leaf range (< 0).
-    tri_verts : (n, 9) float32, vertices p0, p1, p2 of each triangle in leaf order.
+    tri_verts : (n + 1, 9) float32, the vertices of the triangles in leaf order, stored in blocks
+        of up to four per leaf so that four triangles are tested at once
+        (``bvh_build.gather_vertices``; ``triangle_corners`` reads them back).
     tri_ids : (n,) int32, original triangle index of each leaf-order triangle.
     """
 
@@ -62,8 +67,8 @@ def build_bvh(
     triangles : (n, 3) int32 vertex indices. Triangles with a non-finite vertex are left out
         (they can never be hit).
     bins : centroid bins per axis for the SAH sweep (8–32 is usual; 16 is common practice).
-    cost_traversal, cost_intersect : SAH constants, the cost of one node visit and of one
-        ray–triangle test.
+    cost_traversal, cost_intersect : SAH constants, the cost of one node visit and of one test of
+        a block of up to four triangles.
     max_leaf : most triangles per leaf (1–15); smaller leaves are made whenever SAH prefers them.
 
     Returns
@@ -100,8 +105,24 @@ def build_bvh(
         int(max_leaf),
     )  # fmt: skip
     node_bounds, node_links = _node_records(bounds, links)
-    tri_verts = bvh_build.gather_vertices(positions, triangles, order)
+    tri_verts = bvh_build.gather_vertices(positions, triangles, order, links)
     return Bvh(node_bounds, node_links, tri_verts, ids[order])
+
+
+def triangle_corners(bvh: Bvh) -> np.ndarray:
+    """(n, 3, 3) float32: the corners p0, p1, p2 of each triangle in leaf order, read back from
+    the leaf blocks of ``bvh.tri_verts``."""
+    flat = bvh.tri_verts.reshape(-1)
+    corners = np.empty((len(bvh.tri_ids), 9), np.float32)
+    links = bvh.node_links[:, bvh_build.LINK_ROW].reshape(-1)
+    for code in ~links[links < -1]:
+        start = code >> bvh_build.LEAF_BITS
+        end = start + (code & bvh_build.MAX_LEAF)
+        for first in range(start, end, 4):
+            count = min(4, end - first)
+            block = flat[9 * first : 9 * (first + count)].reshape(9, count)
+            corners[first : first + count] = block.T
+    return corners.reshape(-1, 3, 3)
 
 
 def _aligned_empty(shape, dtype, align=128) -> np.ndarray:

@@ -24,10 +24,12 @@ from shots.accel import (
     offset_origins,
     sah_cost,
     traversal_bytes,
+    triangle_corners,
 )
 from shots.kernels import bvh_build, simd, traverse
 from shots.kernels.bvh_build import LINK_ROW, MAX_LEAF
 from shots.kernels.traverse import any_hit_one, closest_hit_one, new_stack
+from shots.kernels.triangle import intersect_triangle, ray_shear
 
 REL_T = 1e-5  # float32 hit distances agree to this (common practice)
 EDGE = 1e-5  # a ray this close to an edge (in barycentrics) may pick either neighbour
@@ -385,13 +387,14 @@ def test_traversal_data_stays_within_64_bytes_per_triangle():
     positions, triangles = icosphere(5)
     bvh = build_bvh(positions, triangles)
     assert traversal_bytes(bvh) <= 64 * len(triangles)
-    assert bvh.tri_verts.nbytes + bvh.tri_ids.nbytes == 40 * len(triangles)
+    # (the vertices' leaf blocks end in one padding row of 36 bytes)
+    assert bvh.tri_verts.nbytes + bvh.tri_ids.nbytes == 40 * len(triangles) + 36
 
 
 def test_child_boxes_contain_their_triangles():
     positions, triangles = MESHES["soup"]
     bvh = build_bvh(positions, triangles, max_leaf=4)
-    lo_hi = bvh.tri_verts.reshape(-1, 3, 3)
+    lo_hi = triangle_corners(bvh)
     for node in range(len(bvh.node_links)):
         for j in range(4):
             link = bvh.node_links[node, LINK_ROW, j]
@@ -472,6 +475,51 @@ def test_entry_keys_sort_like_their_distances_and_keep_the_link():
     # Equal distances order by link bits (unsigned), so a tie never depends on the visit order.
     same = _entry_keys(np.ones(2, np.float32), np.array([4, -1], np.int32))
     assert same[0] < same[1]
+
+
+@numba.njit
+def _four_against_one(blocks, count, origins, directions, t_max):
+    """Each ray against a block of ``count`` triangles: simd.triangles4's lanes and the scalar
+    test of every triangle, side by side: (rays, 2, 3, 4) float64 [vector | scalar][t, u, v]."""
+    scalar = np.empty((count, 9), np.float32)
+    for j in range(count):
+        for r in range(9):
+            scalar[j, r] = blocks[r * count + j]
+    out = np.full((len(origins), 2, 3, 4), -1.0)
+    verts = blocks.reshape(-1, 9)
+    for i in range(len(origins)):
+        o, d = origins[i], directions[i]
+        kx, ky, kz, okx, oky, okz, sx, sy, sz = ray_shear(
+            np.float64(o[0]), np.float64(o[1]), np.float64(o[2]),
+            np.float64(d[0]), np.float64(d[1]), np.float64(d[2]),
+        )  # fmt: skip
+        lanes = simd.triangles4(verts, 0, count, kx, ky, kz, okx, oky, okz, sx, sy,
+                                sz, 0.0, np.float64(t_max[i]))  # fmt: skip
+        for j in range(count):
+            out[i, 0, 0, j], out[i, 0, 1, j], out[i, 0, 2, j] = lanes[j], lanes[4 + j], lanes[8 + j]
+            t, u, v = intersect_triangle(scalar, j, kx, ky, kz, okx, oky, okz, sx, sy, sz, 0.0,
+                                         np.float64(t_max[i]))  # fmt: skip
+            out[i, 1, 0, j], out[i, 1, 1, j], out[i, 1, 2, j] = t, u, v
+    return out
+
+
+@pytest.mark.parametrize("count", [1, 2, 3, 4])
+def test_four_triangle_test_equals_the_scalar_test_bit_for_bit(count):
+    # The leaf test runs Woop, Benthin & Wald's watertight test (JCGT 2013) on four triangles at
+    # once; every lane must give exactly what the one-triangle version gives (same operations,
+    # same order), so the trees' answers do not depend on how a leaf's triangles are grouped.
+    # Lanes past ``count`` read whatever follows the block and are ignored.
+    positions, triangles = MESHES["soup"]
+    block = triangles[:count]
+    origins, directions = sample_rays(positions, block, seed=5)  # aimed at these triangles
+    t_max = np.random.default_rng(6).uniform(0.5, 4.0, len(origins)).astype(np.float32)
+    rows = positions[block].reshape(count, 9).T.reshape(-1)  # the leaf-block layout
+    after = np.full(9 * 4 - len(rows) % 9, np.nan, np.float32)  # what lanes past count read
+    out = _four_against_one(np.concatenate([rows, after]), count, origins, directions, t_max)
+    vector, scalar = out[:, 0, :, :count], out[:, 1, :, :count]
+    hit = np.isfinite(scalar[:, 0])
+    assert hit.sum() > 100 and (~hit).sum() > 100  # the rays both hit and miss
+    assert vector.tobytes() == scalar.tobytes()
 
 
 def test_batches_equal_single_ray_functions():

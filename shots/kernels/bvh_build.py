@@ -4,9 +4,13 @@ Build: top-down over triangle records (box, centre), reordered in place. At each
 are sorted into ``bins`` equal bins per axis; every plane between bins is scored with the surface
 area heuristic (Goldsmith & Salmon 1987; MacDonald & Booth 1990)
 
-    C = c_trav + c_isect · (A_L·N_L + A_R·N_R) / A
+    C = c_trav + c_isect · (A_L·B(N_L) + A_R·B(N_R)) / A,    B(N) = ⌈N / BLOCK⌉,
 
-and the node becomes a leaf when C_leaf = c_isect · N is no worse (and N <= max_leaf). Nodes with
+and the node becomes a leaf when C_leaf = c_isect · B(N) is no worse (and N <= max_leaf). A leaf's
+triangles are tested BLOCK at a time (``simd.triangles4``), so c_isect is the cost of one block
+test and a leaf of 1 to BLOCK triangles costs the same (block-granular leaf costs, as in Wald et
+al., "Embree: A Kernel Framework for Efficient CPU Ray Tracing", ACM TOG 33(4), 2014; from
+memory). Nodes with
 more than PAR_MIN triangles are split first, binning in parallel; the subtrees below them are then
 built in parallel. Counts and min/max are exact and the schedule depends only on triangle counts,
 so the tree is the same for any number of threads.
@@ -32,6 +36,7 @@ from numba import njit, prange
 WIDTH = 4
 NODE_ROWS, LINK_ROW = 8, 6  # node record: 6 rows of child bounds, the links, padding
 LEAF_BITS = 4
+BLOCK = 4  # triangles tested together (simd.triangles4): the granularity of a leaf's cost
 MAX_LEAF = (1 << LEAF_BITS) - 1  # triangles per leaf that the link encoding can hold
 SAH_MAX_DEPTH = 64  # below this depth, halving splits bound the tree depth
 TASK_STACK = 256
@@ -153,6 +158,12 @@ def bin_prims_parallel(prims, start, end, cbox, scale, bins, counts, boxes, part
                     boxes[a, b, 3 + j] = max(boxes[a, b, 3 + j], part_boxes[c, a, b, 3 + j])
 
 
+@njit(cache=True, inline="always")
+def blocks(count):
+    """Block tests a leaf of ``count`` triangles takes."""
+    return (count + BLOCK - 1) // BLOCK
+
+
 @njit(cache=True)
 def best_split(counts, boxes, scale, bins, c_trav, c_isect, area, n, right_area, run):
     """Score every bin plane of every axis; return (cost, axis, plane) of the cheapest, plane =
@@ -178,7 +189,8 @@ def best_split(counts, boxes, scale, bins, c_trav, c_isect, area, n, right_area,
             n_right = n - n_left
             if n_left == 0 or n_right == 0:
                 continue
-            cost = c_trav + c_isect * (half_area(run) * n_left + right_area[plane] * n_right) / area
+            cost = c_trav + c_isect * (half_area(run) * blocks(n_left)
+                                       + right_area[plane] * blocks(n_right)) / area  # fmt: skip
             if cost < best_cost:
                 best_cost, best_axis, best_plane = cost, a, plane
     return best_cost, best_axis, best_plane
@@ -253,7 +265,7 @@ def split_node(prims, order, start, end, depth, box, cbox, bins, c_trav, c_isect
                 area = 1.0  # a degenerate box: any split is as good as any other
             cost, axis, plane = best_split(counts, bin_boxes, scale, bins, c_trav, c_isect, area,
                                            count, scratch[4], scratch[5])  # fmt: skip
-            if count <= max_leaf and cost >= c_isect * count:
+            if count <= max_leaf and cost >= c_isect * blocks(count):
                 return -1
             if axis >= 0:
                 return partition(prims, order, start, end, axis, cbox[axis], scale[axis], bins,
@@ -438,9 +450,9 @@ def merges_into_leaf(node_box, node_left, node_count, c, c_trav, c_isect, max_le
     if area <= 0.0:
         return True
     split = 2.0 * c_trav + c_isect * (
-        half_area(node_box[left]) * n_left + half_area(node_box[left + 1]) * n_right
+        half_area(node_box[left]) * blocks(n_left) + half_area(node_box[left + 1]) * blocks(n_right)
     ) / area
-    return c_isect * (n_left + n_right) <= split
+    return c_isect * blocks(n_left + n_right) <= split
 
 
 @njit(cache=True)
@@ -519,22 +531,38 @@ def collapse_wide(node_box, node_left, node_start, node_count, c_trav, c_isect, 
 
 
 @njit(cache=True, parallel=True)
-def gather_vertices(positions, triangles, order):
-    """Triangle vertices in leaf order: (n, 9) float32 rows p0 p1 p2 (original vertex order)."""
+def gather_vertices(positions, triangles, order, links):
+    """Triangle vertices in leaf blocks: (n + 1, 9) float32, read as a flat array.
+
+    Each leaf's triangles (leaf order, ``order``) go in blocks of up to BLOCK: a block of c
+    triangles starting at leaf-order triangle f fills floats 9f .. 9f + 9c - 1 with nine rows of c
+    floats (p0x p0y p0z p1x ... p2z, original vertex order), so the four triangles' values of one
+    coordinate are one vector load (``simd.triangles4``). The last row is padding: a block's
+    loads read four floats per row, up to three past its own end."""
     n = order.shape[0]
-    verts = np.empty((n, 9), np.float32)
-    for k in prange(n):
-        p = order[k]
-        for c in range(3):
-            for a in range(3):
-                verts[k, 3 * c + a] = positions[triangles[p, c], a]
+    verts = np.zeros((n + 1, 9), np.float32)
+    flat = verts.reshape(9 * (n + 1))
+    for node in prange(links.shape[0]):
+        for slot in range(WIDTH):
+            code = ~links[node, slot]
+            if code < 0:  # an inner node
+                continue
+            start = code >> LEAF_BITS
+            end = start + (code & MAX_LEAF)
+            for first in range(start, end, BLOCK):
+                count = min(BLOCK, end - first)
+                for j in range(count):
+                    p = order[first + j]
+                    for c in range(3):
+                        for a in range(3):
+                            flat[9 * first + (3 * c + a) * count + j] = positions[triangles[p, c], a]
     return verts
 
 
 @njit(cache=True)
 def sah_cost(node_bounds, node_links, c_trav, c_isect):
     """SAH cost of the wide tree relative to its root box: c_trav per node visit and c_isect per
-    triangle, each weighted by the probability of a random line through the root hitting it."""
+    block of a leaf's triangles, each weighted by the probability of a random line through the root hitting it."""
     root = np.empty(6, np.float32)
     child = np.empty(6, np.float32)
     for a in range(3):
@@ -553,5 +581,5 @@ def sah_cost(node_bounds, node_links, c_trav, c_isect):
             if link >= 0:
                 cost += c_trav * half_area(child) / root_area
             elif (~link) & MAX_LEAF:
-                cost += c_isect * ((~link) & MAX_LEAF) * half_area(child) / root_area
+                cost += c_isect * blocks((~link) & MAX_LEAF) * half_area(child) / root_area
     return cost

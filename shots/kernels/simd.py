@@ -14,10 +14,12 @@ from numba.core import cgutils
 from numba.extending import intrinsic
 
 _F4 = ir.VectorType(ir.FloatType(), 4)
+_D4 = ir.VectorType(ir.DoubleType(), 4)
 
 
-def _splat(builder, value):
-    vec = builder.insert_element(ir.Constant(_F4, ir.Undefined), value, ir.IntType(32)(0))
+def _splat(builder, value, vector_type=_F4):
+    """``value`` in every lane of a ``vector_type``."""
+    vec = builder.insert_element(ir.Constant(vector_type, ir.Undefined), value, ir.IntType(32)(0))
     return builder.shuffle_vector(vec, vec, ir.Constant(ir.VectorType(ir.IntType(32), 4), [0] * 4))
 
 
@@ -143,3 +145,79 @@ def entry_key(typingctx, t, link):
         return builder.or_(builder.shl(ordered, i64(32)), low)
 
     return sig, codegen
+
+
+
+@intrinsic
+def triangles4(typingctx, verts, first, count, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min,
+               t_max):  # fmt: skip
+    """The watertight test of ``shots.kernels.triangle.intersect_triangle`` on four triangles at
+    once, as <4 x double> arithmetic: the very same operations in the same order, so every lane
+    gives bit for bit what the scalar test gives.
+
+    Parameters
+    ----------
+    verts : float32 array in leaf blocks (``bvh_build.gather_vertices``): the block of triangle
+        ``first`` holds ``count`` (1–4) triangles as nine rows of ``count`` floats (p0x p0y p0z
+        p1x ... p2z), starting at float ``9 * first``. Each row is read as four floats; lanes at
+        and past ``count`` read the next block (or the array's padding row) and are ignored.
+    kx .. sz : int64 axis permutation and float64 ray constants of ``triangle.ray_shear``.
+    t_min, t_max : float64 accepted distance interval.
+
+    Returns (t0, t1, t2, t3, u0, .., u3, v0, .., v3) float64: t = inf where a lane misses.
+    """
+    f64, i64 = types.float64, types.int64
+    sig = types.UniTuple(f64, 12)(verts, i64, i64, i64, i64, i64, f64, f64, f64, f64, f64, f64,
+                                  f64, f64)  # fmt: skip
+
+    def codegen(context, builder, signature, args):
+        ary = context.make_array(signature.args[0])(context, builder, value=args[0])
+        first, count, kx, ky, kz = args[1:6]
+        okx, oky, okz, sx, sy, sz, t_min, t_max = [_splat(builder, a, _D4) for a in args[6:]]
+        block = builder.gep(ary.data, [builder.mul(first, first.type(9))])
+
+        def coord(corner, axis):  # row 3·corner + axis of the block, widened to double
+            r = builder.mul(builder.add(axis, axis.type(3 * corner)), count)
+            ptr = builder.bitcast(builder.gep(block, [r]), _F4.as_pointer())
+            return builder.fpext(builder.load(ptr, align=4), _D4)
+
+        fsub, fmul, fadd = builder.fsub, builder.fmul, builder.fadd
+        az = fsub(coord(0, kz), okz)
+        bz = fsub(coord(1, kz), okz)
+        cz = fsub(coord(2, kz), okz)
+        ax = fsub(fsub(coord(0, kx), okx), fmul(sx, az))
+        ay = fsub(fsub(coord(0, ky), oky), fmul(sy, az))
+        bx = fsub(fsub(coord(1, kx), okx), fmul(sx, bz))
+        by = fsub(fsub(coord(1, ky), oky), fmul(sy, bz))
+        cx = fsub(fsub(coord(2, kx), okx), fmul(sx, cz))
+        cy = fsub(fsub(coord(2, ky), oky), fmul(sy, cz))
+        eu = fsub(fmul(cx, by), fmul(cy, bx))
+        ev = fsub(fmul(ax, cy), fmul(ay, cx))
+        ew = fsub(fmul(bx, ay), fmul(by, ax))
+        det = fadd(fadd(eu, ev), ew)
+        inv = builder.fdiv(ir.Constant(_D4, [1.0] * 4), det)
+        t = fmul(fmul(fadd(fadd(fmul(eu, az), fmul(ev, bz)), fmul(ew, cz)), sz), inv)
+
+        zero = ir.Constant(_D4, [0.0] * 4)
+
+        def any3(op):
+            return builder.or_(builder.or_(builder.fcmp_ordered(op, eu, zero),
+                                           builder.fcmp_ordered(op, ev, zero)),
+                               builder.fcmp_ordered(op, ew, zero))  # fmt: skip
+
+        outside = builder.and_(any3("<"), any3(">"))
+        i64x4 = ir.VectorType(ir.IntType(64), 4)
+        lanes = ir.Constant(i64x4, [0, 1, 2, 3])
+        hit = builder.and_(builder.not_(outside),
+                           builder.icmp_signed("<", lanes, _splat(builder, count, i64x4)))  # fmt: skip
+        hit = builder.and_(hit, builder.fcmp_unordered("!=", det, zero))
+        hit = builder.and_(hit, builder.fcmp_ordered(">=", t, t_min))
+        hit = builder.and_(hit, builder.fcmp_ordered("<=", t, t_max))
+        t = builder.select(hit, t, ir.Constant(_D4, [float("inf")] * 4))
+        u, v = fmul(ev, inv), fmul(ew, inv)
+        out = [builder.extract_element(vec, ir.IntType(32)(j)) for vec in (t, u, v)
+               for j in range(4)]  # fmt: skip
+        return cgutils.pack_array(builder, out)
+
+    return sig, codegen
+

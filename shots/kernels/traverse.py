@@ -32,7 +32,9 @@ entry distance, so they are skipped once a closer hit is known. A stack entry is
 min/max, which compile to conditional moves rather than branches. The four child boxes of a node
 are tested at once (``simd.slab4``) with the robust slab test of Ize (JCGT 2(2), 2013; as in
 Pharr, Jakob & Humphreys, PBR 3rd ed. §3.9.2): exit distances are widened by 1 + 2·gamma(3) so
-float32 rounding never culls a box the ray touches. Data-dependent choices are written as selects
+float32 rounding never culls a box the ray touches. A leaf's triangles are tested four at a time
+(``simd.triangles4``, the float64 watertight test of ``shots.kernels.triangle`` on <4 x double>
+lanes), reading the leaf blocks ``bvh_build.gather_vertices`` lays out. Data-dependent choices are written as selects
 rather than branches where that is cheap: mispredicted branches dominate incoherent traversal.
 """
 
@@ -41,11 +43,12 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
-from shots.kernels.bvh_build import LEAF_BITS, LINK_ROW, MAX_LEAF, WIDTH
-from shots.kernels.simd import child_keys, entry_key, prefetch_row, slab4
-from shots.kernels.triangle import intersect_triangle, ray_shear
+from shots.kernels.bvh_build import BLOCK, LEAF_BITS, LINK_ROW, MAX_LEAF, WIDTH
+from shots.kernels.simd import child_keys, entry_key, prefetch_row, slab4, triangles4
+from shots.kernels.triangle import ray_shear
 
 assert WIDTH == 4  # the slab tests below are written out for four children
+assert BLOCK == 4  # and the triangle tests for four triangles
 
 # Stack entries per ray: at most 3 per tree level, and the build bounds the depth by
 # SAH_MAX_DEPTH + log2(triangles) + 1 <= 92 (bvh_build), so 3·92 + 3 fit.
@@ -145,20 +148,42 @@ def pop_ordered(stack, bottom, sp, t_hi):
 
 
 @njit(cache=True, inline="always")
+def block_hits(tri_verts, first, end, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min, t_max):
+    """``simd.triangles4`` on the block of a leaf that starts at triangle ``first`` (the leaf
+    ends before ``end``)."""
+    return triangles4(tri_verts, first, min(BLOCK, end - first), kx, ky, kz, okx, oky, okz, sx,
+                      sy, sz, np.float64(t_min), np.float64(t_max))  # fmt: skip
+
+
+@njit(cache=True, inline="always")
+def take_closer(t, u, v, k, t_best, u_best, v_best, k_best):
+    """The better of a triangle's hit and the best so far: closer, or the first hit exactly at
+    t_max."""
+    better = (t < t_best) | ((k_best < 0) & (t == t_best) & (t < np.inf))
+    return ((t if better else t_best), (u if better else u_best), (v if better else v_best),
+            (k if better else k_best))  # fmt: skip
+
+
+@njit(cache=True, inline="always")
 def visit_leaf_closest(tri_verts, link, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min, t_best,
                        u_best, v_best, k_best):  # fmt: skip
-    """Test the triangles of a leaf; returns the updated (t, u, v, leaf-order index) best hit."""
+    """Test the triangles of a leaf, four at a time; returns the updated (t, u, v, leaf-order
+    index) best hit. Lanes are taken in leaf order, so ties resolve as one by one would."""
     code = ~link
     start = code >> LEAF_BITS
-    for k in range(start, start + (code & MAX_LEAF)):
-        t, u, v = intersect_triangle(tri_verts, k, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min,
-                                     t_best)  # fmt: skip
-        # Closer, or the first hit exactly at t_max.
-        better = (t < t_best) | ((k_best < 0) & (t == t_best) & (t < np.inf))
-        t_best = t if better else t_best
-        u_best = u if better else u_best
-        v_best = v if better else v_best
-        k_best = k if better else k_best
+    end = start + (code & MAX_LEAF)
+    for first in range(start, end, BLOCK):
+        t0, t1, t2, t3, u0, u1, u2, u3, v0, v1, v2, v3 = block_hits(
+            tri_verts, first, end, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min, t_best
+        )
+        t_best, u_best, v_best, k_best = take_closer(t0, u0, v0, first, t_best, u_best, v_best,
+                                                     k_best)  # fmt: skip
+        t_best, u_best, v_best, k_best = take_closer(t1, u1, v1, first + 1, t_best, u_best,
+                                                     v_best, k_best)  # fmt: skip
+        t_best, u_best, v_best, k_best = take_closer(t2, u2, v2, first + 2, t_best, u_best,
+                                                     v_best, k_best)  # fmt: skip
+        t_best, u_best, v_best, k_best = take_closer(t3, u3, v3, first + 3, t_best, u_best,
+                                                     v_best, k_best)  # fmt: skip
     return t_best, u_best, v_best, k_best
 
 
@@ -184,10 +209,11 @@ def leaf_occludes(tri_verts, link, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min,
     """True when a triangle of the leaf lies within [t_min, t_max]."""
     code = ~link
     start = code >> LEAF_BITS
-    for k in range(start, start + (code & MAX_LEAF)):
-        t, u, v = intersect_triangle(tri_verts, k, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min,
-                                     t_max)  # fmt: skip
-        if t < np.inf:
+    end = start + (code & MAX_LEAF)
+    for first in range(start, end, BLOCK):
+        t0, t1, t2, t3 = block_hits(tri_verts, first, end, kx, ky, kz, okx, oky, okz, sx, sy, sz,
+                                    t_min, t_max)[:4]  # fmt: skip
+        if min(min(t0, t1), min(t2, t3)) < np.inf:
             return True
     return False
 
@@ -283,7 +309,7 @@ I_RAY, I_LINK, I_SP, I_K, I_NX, I_NY, I_NZ, I_KX, I_KY, I_KZ = range(10)
 def prefetch_link(node_bounds, tri_verts, link):
     """Start fetching what visiting ``link`` will read (a node record or a leaf's triangles)."""
     prefetch_row(node_bounds, max(link, 0))
-    prefetch_row(tri_verts, max((~link) >> LEAF_BITS, 0))
+    prefetch_row(tri_verts, max((~link) >> LEAF_BITS, 0))  # a leaf's first block starts its row
 
 
 @njit(cache=True, error_model="numpy")
