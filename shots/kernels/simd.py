@@ -66,7 +66,11 @@ def _slab_entries(context, builder, signature, args):
     for axis, near in enumerate((nx_val, ny_val, nz_val)):
         far = builder.xor(near, near.type(1))
         lo = builder.fmul(builder.fsub(row(near), o[axis]), inv[axis])
-        hi = builder.fmul(builder.fmul(builder.fsub(row(far), o[axis]), inv[axis]), rob)
+        # (far − o)·(inv·robust) rather than ((far − o)·inv)·robust: the same number of roundings,
+        # so Ize's factor still covers it, and inv·robust is the same for every node of a ray,
+        # which LLVM computes once per ray (bench/raycast.py --quick, one thread: camera
+        # 0.79 -> 0.82-0.83 of Embree's rate, incoherent 0.70-0.71 -> 0.71-0.73).
+        hi = builder.fmul(builder.fsub(row(far), o[axis]), builder.fmul(inv[axis], rob))
         t_in = builder.select(builder.fcmp_ordered(">", lo, t_in), lo, t_in)
         t_out = builder.select(builder.fcmp_ordered("<", hi, t_out), hi, t_out)
     inf = ir.Constant(_F4, [float("inf")] * 4)
