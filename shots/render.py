@@ -13,7 +13,9 @@ Image formation
     a single sample goes through the pixel centre. ``look.samples`` = N > 0 gives every pixel
     exactly N samples; 0 renders sets of a few samples until each pixel's estimated error is
     under ``look.noise_target`` display codes, between ``look.min_samples`` and
-    ``look.max_samples`` (``shots.sampling_control``). ``look.denoise`` then filters the matte
+    ``look.max_samples`` (``shots.sampling_control``); on a shadow catcher those passes count
+    on the floor's alpha being smoothed afterwards (``shots.contact_shadow``), so its pixels
+    stop early. ``look.denoise`` then filters the matte
     product pixels' illumination (``shots.denoise``), guided by their first surfaces
     (``shots.albedo.first_surfaces``). Every 2-D number of a sample (its place, light,
     environment and lobe directions) continues a per-pixel sequence over all its sets; the rest
@@ -319,6 +321,7 @@ def render_frame_counted(
     shape = (camera.height, camera.width)
     seed = int(look.seed) & 0xFFFFFFFF
     surfaces = first_surfaces(prepared, camera) if look.denoise else None
+    catcher = look.ground.kind == "shadow_catcher"
     variance = None
     if look.samples > 0:
         out, counts = sampling_control.render_fixed(run_pass, shape, look.samples, seed)
@@ -328,9 +331,9 @@ def render_frame_counted(
         out, counts = sampling_control.render_adaptive(
             run_pass, shape, seed, look.noise_target, look.min_samples, look.max_samples,
             look.exposure, look.tone_map,
-            SHADOW_NOISE_FLOOR if look.ground.kind == "shadow_catcher" else 0.0, variance,
+            SHADOW_NOISE_FLOOR if catcher else 0.0, variance, smooth_shadow=catcher,
         )  # fmt: skip
-    if look.ground.kind == "shadow_catcher":
+    if catcher:
         lift_shadow_noise_floor(out)
     if surfaces is not None:
         out = denoiser.denoise(out, surfaces, variance)

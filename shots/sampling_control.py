@@ -35,6 +35,7 @@ from collections.abc import Callable
 
 import numpy as np
 
+from shots import contact_shadow
 from shots.colour import to_display
 from shots.kernels.sampling import pcg_hash
 
@@ -92,11 +93,14 @@ def render_adaptive(
     tone_map: str = "neutral",
     shadow_floor: float = 0.0,
     variance_out: np.ndarray | None = None,
+    smooth_shadow: bool = False,
 ):
     """Stratified sets until each pixel's estimated error is under ``noise_target`` codes.
 
     ``shadow_floor``: the shadow-catcher alpha that ``shots.render.lift_shadow_noise_floor`` will
     remove from pure-shadow pixels (0 without a catcher); error below it is not shown.
+    ``smooth_shadow``: smooth the shadow catcher's floor at the end (``shots.contact_shadow``),
+    and let the pixels it smooths stop at the error smoothing will bring under the target.
     ``variance_out``: an (h, w, 4) float64 array to receive the estimated variance of each
     pixel's mean (its standard error squared, per channel), for the denoiser.
 
@@ -121,7 +125,9 @@ def render_adaptive(
         se = standard_error(sums.total[on], sums.squares[on], n, sums.sets[on][:, None])
         noisy = se.max(axis=1) > 0.0  # the rest (empty background, most of a frame) shows none
         found = np.zeros(len(se))
-        found[noisy] = display_error(mean[noisy], se[noisy], exposure, tone_map, shadow_floor)
+        scale = shadow_scales(sums.total, counts, smooth_shadow)[on][noisy]
+        found[noisy] = display_error(mean[noisy], se[noisy], exposure, tone_map, shadow_floor,
+                                     scale)  # fmt: skip
         error[on] = found
         needed = np.where(on, np.ceil(counts * smoothed_square(error) / noise_target**2), 0)
         needed = np.clip(np.maximum(needed, min_samples), 0, max_samples)
@@ -132,7 +138,20 @@ def render_adaptive(
         n = np.maximum(counts, 1).astype(np.float64)[..., None]
         sets = np.maximum(sums.sets, 2)[..., None]
         variance_out[...] = standard_error(sums.total, sums.squares, n, sets) ** 2
-    return (sums.total / np.maximum(counts, 1)[..., None]).astype(np.float32), counts
+    rgba = (sums.total / np.maximum(counts, 1)[..., None]).astype(np.float32)
+    if smooth_shadow:
+        contact_shadow.smooth_floor(rgba)
+    return rgba, counts
+
+
+def shadow_scales(total: np.ndarray, counts: np.ndarray, smooth_shadow: bool) -> np.ndarray:
+    """(h, w) factor on each pixel's standard error for the decision to stop: ``stop_scale``
+    where the floor will be smoothed, 1 elsewhere."""
+    if not smooth_shadow:
+        return np.ones(counts.shape)
+    mean = total / np.maximum(counts, 1)[..., None]
+    smoothed = contact_shadow.smoothed_pixels(mean)
+    return np.where(smoothed, contact_shadow.stop_scale(), 1.0)
 
 
 def next_set_size(counts: np.ndarray, short: np.ndarray, room: np.ndarray) -> np.ndarray:
@@ -160,11 +179,17 @@ def standard_error(total, squares, samples, sets) -> np.ndarray:
 
 
 def display_error(
-    mean: np.ndarray, se: np.ndarray, exposure: float, tone_map: str, shadow_floor: float = 0.0
+    mean: np.ndarray,
+    se: np.ndarray,
+    exposure: float,
+    tone_map: str,
+    shadow_floor: float = 0.0,
+    shadow_scale: np.ndarray | float = 1.0,
 ) -> np.ndarray:
     """(n,) estimated error in 8-bit display codes of n pixels' (n, 4) premultiplied means with
     standard errors ``se``: the largest of the colour channels as shown over black (display
-    colour × alpha) and alpha (of a colourless pixel, after the shadow floor is lifted)."""
+    colour × alpha) and alpha (of a colourless pixel, after the shadow floor is lifted and the
+    floor smoothed, which scales its standard error by ``shadow_scale``: one factor, or (n,))."""
     high, low = mean.copy(), mean.copy()
     high[:, :3] += se[:, :3]
     low[:, :3] = np.maximum(low[:, :3] - se[:, :3], 0.0)
@@ -175,7 +200,8 @@ def display_error(
     alpha = se[:, 3].copy()
     if shadow_floor > 0.0:
         shadow = mean[:, :3].max(axis=1) <= 0.0
-        a, d = mean[shadow, 3], se[shadow, 3]
+        scale = np.broadcast_to(shadow_scale, shadow.shape)[shadow]
+        a, d = mean[shadow, 3], scale * se[shadow, 3]
         alpha[shadow] = 0.5 * (lift(a + d, shadow_floor) - lift(a - d, shadow_floor))
     return CODES * np.maximum(colour, alpha)
 
