@@ -262,6 +262,11 @@ def _check_inputs(model: str, inputs_sha256: str) -> None:
                                        "hashed (a stale copy on this worker, or changed since)")
 
 
+def over_limit_message(seconds: float) -> str:
+    """The error of a model stopped by the preset's ``[limits] seconds``: the limit and its key."""
+    return f"took more than {seconds:g} s (limit seconds)"
+
+
 @contextmanager
 def time_limit(seconds: float, source: str):
     """Fail the work in the block with a ``RenderError`` after ``seconds`` of wall time.
@@ -281,7 +286,7 @@ def time_limit(seconds: float, source: str):
         # Python drops an exception raised inside a garbage-collector callback or a finaliser,
         # so the alarm rings again shortly until the raise reaches the work itself
         signal.setitimer(signal.ITIMER_REAL, 0.05)
-        raise RenderError(source, None, f"took more than {seconds:g} s (limit seconds)")
+        raise RenderError(source, None, over_limit_message(seconds))
 
     previous = signal.signal(signal.SIGALRM, expire)
     signal.setitimer(signal.ITIMER_REAL, seconds)
