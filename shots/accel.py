@@ -118,8 +118,8 @@ def triangle_corners(bvh: Bvh) -> np.ndarray:
     for code in ~links[links < -1]:
         start = code >> bvh_build.LEAF_BITS
         end = start + (code & bvh_build.MAX_LEAF)
-        for first in range(start, end, 4):
-            count = min(4, end - first)
+        for first in range(start, end, bvh_build.BLOCK):
+            count = min(bvh_build.BLOCK, end - first)
             block = flat[9 * first : 9 * (first + count)].reshape(9, count)
             corners[first : first + count] = block.T
     return corners.reshape(-1, 3, 3)

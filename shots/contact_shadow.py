@@ -62,8 +62,12 @@ def smoothed_pixels(rgba: np.ndarray) -> np.ndarray:
     (in x and y). The contact shadow is darkest and narrowest right at the product's foot (a
     ring a pixel or two wide round the floor lamp's base at 256 px), where averaging with the
     lighter floor beyond would wash it out; there the sampler traces to the plain target."""
-    coloured = np.pad(~floor_pixels(rgba), RADIUS)
-    h, w = rgba.shape[:2]
+    return _far_from_colour(floor_pixels(rgba))
+
+
+def _far_from_colour(floor: np.ndarray) -> np.ndarray:
+    coloured = np.pad(~floor, RADIUS)
+    h, w = floor.shape
     near = np.zeros((h, w), bool)
     for dy in range(2 * RADIUS + 1):
         for dx in range(2 * RADIUS + 1):
@@ -75,17 +79,16 @@ def smooth_floor(rgba: np.ndarray) -> None:
     """Replace the alpha of the ``smoothed_pixels`` by the Gaussian-weighted mean of the floor
     pixels around them (in place; colour and every other pixel are left alone)."""
     floor = floor_pixels(rgba)
-    written = smoothed_pixels(rgba)
+    written = _far_from_colour(floor)
     if not written.any():
         return
     h, w = floor.shape
-    weights = floor.astype(np.float64)
-    alpha = np.where(floor, rgba[..., 3], 0.0).astype(np.float64)
     pad = ((RADIUS, RADIUS), (RADIUS, RADIUS))
-    weights_padded, alpha_padded = np.pad(weights, pad), np.pad(alpha, pad)
+    weights = np.pad(floor.astype(np.float64), pad)
+    alpha = np.pad(np.where(floor, rgba[..., 3], 0.0).astype(np.float64), pad)
     total = np.zeros((h, w))
     norm = np.zeros((h, w))
     for (dy, dx), k in np.ndenumerate(kernel()):
-        total += k * alpha_padded[dy : dy + h, dx : dx + w]
-        norm += k * weights_padded[dy : dy + h, dx : dx + w]
+        total += k * alpha[dy : dy + h, dx : dx + w]
+        norm += k * weights[dy : dy + h, dx : dx + w]
     rgba[..., 3][written] = (total[written] / norm[written]).astype(rgba.dtype)

@@ -125,7 +125,7 @@ def render_adaptive(
         se = standard_error(sums.total[on], sums.squares[on], n, sums.sets[on][:, None])
         noisy = se.max(axis=1) > 0.0  # the rest (empty background, most of a frame) shows none
         found = np.zeros(len(se))
-        scale = shadow_scales(sums.total, counts, smooth_shadow)[on][noisy]
+        scale = shadow_scales(sums.total, counts)[on][noisy] if smooth_shadow else 1.0
         found[noisy] = display_error(mean[noisy], se[noisy], exposure, tone_map, shadow_floor,
                                      scale)  # fmt: skip
         error[on] = found
@@ -144,11 +144,9 @@ def render_adaptive(
     return rgba, counts
 
 
-def shadow_scales(total: np.ndarray, counts: np.ndarray, smooth_shadow: bool) -> np.ndarray:
+def shadow_scales(total: np.ndarray, counts: np.ndarray) -> np.ndarray:
     """(h, w) factor on each pixel's standard error for the decision to stop: ``stop_scale``
     where the floor will be smoothed, 1 elsewhere."""
-    if not smooth_shadow:
-        return np.ones(counts.shape)
     mean = total / np.maximum(counts, 1)[..., None]
     smoothed = contact_shadow.smoothed_pixels(mean)
     return np.where(smoothed, contact_shadow.stop_scale(), 1.0)

@@ -74,8 +74,7 @@ def test_the_sampler_counts_the_smoothing_in_a_shadow_pixels_error():
 def test_the_sampler_lets_only_the_smoothed_pixels_stop_early():
     total = np.zeros((7, 7, 4))
     total[3, 3] = (0.5, 0.5, 0.5, 1.0)  # one product pixel in a floor
-    scales = shadow_scales(total, np.ones((7, 7), np.int32), True)
+    scales = shadow_scales(total, np.ones((7, 7), np.int32))
     far = contact_shadow.smoothed_pixels(total)
     assert far.sum() == 49 - 25
     assert np.all(scales[far] == contact_shadow.stop_scale()) and np.all(scales[~far] == 1.0)
-    assert np.all(shadow_scales(total, np.ones((7, 7), np.int32), False) == 1.0)

@@ -562,7 +562,8 @@ def gather_vertices(positions, triangles, order, links):
 @njit(cache=True)
 def sah_cost(node_bounds, node_links, c_trav, c_isect):
     """SAH cost of the wide tree relative to its root box: c_trav per node visit and c_isect per
-    block of a leaf's triangles, each weighted by the probability of a random line through the root hitting it."""
+    block of a leaf's triangles, each weighted by the probability of a random line through the
+    root hitting it."""
     root = np.empty(6, np.float32)
     child = np.empty(6, np.float32)
     for a in range(3):

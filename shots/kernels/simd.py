@@ -151,7 +151,6 @@ def entry_key(typingctx, t, link):
     return sig, codegen
 
 
-
 @intrinsic
 def triangles4(typingctx, verts, first, count, kx, ky, kz, okx, oky, okz, sx, sy, sz, t_min,
                t_max):  # fmt: skip
