@@ -55,7 +55,8 @@ KEY_NOTES = {
                              "references; a power of two is stratified exactly).",
     "ImageSettings.noise_target": "Adaptive sampling stops a pixel when its estimated error (one "
                                   "standard error, with its 3×3 neighbours) is under this many "
-                                  "8-bit sRGB codes (0–255) of the displayed colour or alpha.",
+                                  "8-bit sRGB codes (0–255) of the displayed colour (root mean "
+                                  "square over red, green and blue) or alpha.",
     "ImageSettings.min_samples": "Adaptive sampling: samples every pixel takes before its error "
                                  "is judged (at least 8: two sets of 4 give a variance).",
     "ImageSettings.max_samples": "Adaptive sampling: the most samples a pixel takes.",

@@ -61,6 +61,15 @@ def test_display_error_follows_the_srgb_slope():
     assert error[0] == pytest.approx(slope * se, rel=1e-3)
 
 
+def test_colour_error_is_the_root_mean_square_over_channels():
+    # noise in red alone counts √(1/3) of red's error: the target is the per-channel RMSE that
+    # bench/quality.py reports, not the worst channel (slope as above, IEC 61966-2-1 §5.2)
+    x, se = 0.2, 1e-4
+    error = display_error(np.array([[x, x, x, 1.0]]), np.array([[se, 0.0, 0.0, 0.0]]), 0.0, "none")
+    slope = 255.0 * 1.055 / 2.4 * x ** (1.0 / 2.4 - 1.0)
+    assert error[0] == pytest.approx(slope * se / np.sqrt(3.0), rel=1e-3)
+
+
 def test_alpha_error_is_in_codes_of_coverage():
     # black with half coverage: only alpha varies, 255 codes = fully opaque
     error = display_error(np.array([[0.0, 0.0, 0.0, 0.5]]), np.array([[0.0, 0.0, 0.0, 0.01]]),
