@@ -19,8 +19,8 @@ Adaptive (``look.samples`` = 0)
     ``shots.colour.to_display`` over ±1 standard error: the delta method with the curve's own
     slope), as the root mean square over red, green and blue: the error bench/quality.py
     measures against a reference (the largest channel instead cost 3–12 % more CPU on the
-    demo thumbnails for errors already under the target). Alpha counts as a fourth channel (255 codes = fully opaque), so edges against a
-    transparent background converge too. The error falls as 1/√n, so a pixel with error e
+    demo thumbnails for errors already under the target). Alpha counts as a fourth channel
+    (255 codes = fully opaque), so edges against a transparent background converge too. The error falls as 1/√n, so a pixel with error e
     after n samples needs n·(e / target)².
     The decision is smoothed: a pixel goes on while its own error or the mean error variance of
     its 3 × 3 neighbourhood is above ``noise_target`` (two sets give one degree of freedom, and
@@ -188,9 +188,9 @@ def display_error(
 ) -> np.ndarray:
     """(n,) estimated error in 8-bit display codes of n pixels' (n, 4) premultiplied means with
     standard errors ``se``: the larger of the colour's error as shown over black (display
-    colour × alpha; root mean square over red, green and blue, the measure bench/quality.py
-    reports, so a target means the same there) and alpha (of a colourless pixel, after the shadow floor is lifted and the
-    floor smoothed, which scales its standard error by ``shadow_scale``: one factor, or (n,))."""
+    colour × alpha; root mean square over red, green and blue, as bench/quality.py measures)
+    and alpha (of a colourless pixel, after the shadow floor is lifted and the floor smoothed,
+    which scales its standard error by ``shadow_scale``: one factor, or (n,))."""
     high, low = mean.copy(), mean.copy()
     high[:, :3] += se[:, :3]
     low[:, :3] = np.maximum(low[:, :3] - se[:, :3], 0.0)

@@ -52,22 +52,25 @@ def test_standard_error_of_known_streams_is_sigma_over_root_n(sizes):
     assert abs(np.mean(se**2) / (sigma**2 / n) - 1.0) < 5 * spread
 
 
+def srgb_slope_in_codes(x: float) -> float:
+    """IEC 61966-2-1 §5.2: code = 255 (1.055 x^(1/2.4) − 0.055), so its slope is
+    255·1.055/2.4·x^(1/2.4 − 1)."""
+    return 255.0 * 1.055 / 2.4 * x ** (1.0 / 2.4 - 1.0)
+
+
 def test_display_error_follows_the_srgb_slope():
-    # IEC 61966-2-1 §5.2: code = 255 (1.055 x^(1/2.4) − 0.055), slope 255·1.055/2.4·x^(1/2.4 − 1);
     # a small standard error maps to codes through that slope (no tone map, opaque pixel)
     x, se = 0.2, 1e-4
     error = display_error(np.array([[x, x, x, 1.0]]), np.array([[se, se, se, 0.0]]), 0.0, "none")
-    slope = 255.0 * 1.055 / 2.4 * x ** (1.0 / 2.4 - 1.0)
-    assert error[0] == pytest.approx(slope * se, rel=1e-3)
+    assert error[0] == pytest.approx(srgb_slope_in_codes(x) * se, rel=1e-3)
 
 
 def test_colour_error_is_the_root_mean_square_over_channels():
     # noise in red alone counts √(1/3) of red's error: the target is the per-channel RMSE that
-    # bench/quality.py reports, not the worst channel (slope as above, IEC 61966-2-1 §5.2)
+    # bench/quality.py reports, not the worst channel
     x, se = 0.2, 1e-4
     error = display_error(np.array([[x, x, x, 1.0]]), np.array([[se, 0.0, 0.0, 0.0]]), 0.0, "none")
-    slope = 255.0 * 1.055 / 2.4 * x ** (1.0 / 2.4 - 1.0)
-    assert error[0] == pytest.approx(slope * se / np.sqrt(3.0), rel=1e-3)
+    assert error[0] == pytest.approx(srgb_slope_in_codes(x) * se / np.sqrt(3.0), rel=1e-3)
 
 
 def test_alpha_error_is_in_codes_of_coverage():
