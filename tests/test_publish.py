@@ -295,7 +295,11 @@ def test_dry_run_counts_what_a_run_then_does_and_writes_nothing(published, tmp_p
                           workers=1, animations=())
     assert not (tmp_path / "new").exists()
     assert (fresh.frames_to_render, fresh.frames_to_skip, fresh.derivatives_to_make) == (4, 0, 8)
-    assert fresh.seconds_per_frame > 0 and fresh.estimate_seconds > 0
+    # the estimate comes from rendering one small frame of the first model to render, and adds
+    # up per frame and per derivative (the timings themselves belong in bench/, not here)
+    assert fresh.calibrated_on.startswith(Path(fresh.models[0].listed_as).name)
+    assert fresh.estimate_seconds == pytest.approx(
+        4 * fresh.seconds_per_frame + 8 * fresh.seconds_per_derivative)
 
     out = tmp_path / "out"
     shutil.copytree(published["out"], out)
@@ -306,7 +310,10 @@ def test_dry_run_counts_what_a_run_then_does_and_writes_nothing(published, tmp_p
     assert sorted((p, p.stat().st_mtime_ns) for p in out.rglob("*")) == before
     # only the JPEG derivative changed: 2 models × 2 views, nothing to render
     assert (changed.frames_to_render, changed.frames_to_skip) == (0, 4)
-    assert changed.derivatives_to_make == 4 and changed.seconds_per_frame is None
+    # nothing to render: no frame is calibrated, and only the derivatives count
+    assert changed.derivatives_to_make == 4
+    assert changed.seconds_per_frame is None and changed.calibrated_on == ""
+    assert changed.estimate_seconds == pytest.approx(4 * changed.seconds_per_derivative)
     log = tmp_path / "log.jsonl"
     batch(published["catalog"], preset, out, log)
     assert rendered_frames(log) == 0
